@@ -1,0 +1,136 @@
+//! Ingest + clean + steps on 10^6 synthetic fixes (100 animals × 10 000), from CSV and from
+//! Parquet. Prints fixes per second and peak memory (VmHWM); asserts nothing.
+//!
+//! Each measurement runs in a child process of this binary so that its peak memory is its
+//! own. Run: `cargo bench --bench ingest`.
+
+use std::path::{Path, PathBuf};
+use std::time::Instant;
+
+use polars::prelude::*;
+
+const ANIMALS: usize = 100;
+const PER_ANIMAL: usize = 10_000;
+
+fn peak_rss_mib() -> f64 {
+    let s = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
+    s.lines()
+        .find(|l| l.starts_with("VmHWM:"))
+        .and_then(|l| l.split_whitespace().nth(1))
+        .and_then(|k| k.parse::<f64>().ok())
+        .map_or(f64::NAN, |k| k / 1024.0)
+}
+
+/// A synthetic table: hourly GPS-like fixes on a slow random walk (64-bit LCG).
+fn table() -> DataFrame {
+    let n = ANIMALS * PER_ANIMAL;
+    let mut id = Vec::with_capacity(n);
+    let mut t = Vec::with_capacity(n);
+    let mut lon = Vec::with_capacity(n);
+    let mut lat = Vec::with_capacity(n);
+    let mut lc = Vec::with_capacity(n);
+    let mut state = 42u64;
+    let mut u = || {
+        state = state
+            .wrapping_mul(6_364_136_223_846_793_005)
+            .wrapping_add(1_442_695_040_888_963_407);
+        (state >> 11) as f64 / (1u64 << 53) as f64
+    };
+    let classes = ["G", "3", "2", "1", "0", "A", "B"];
+    for a in 0..ANIMALS {
+        let (mut x, mut y) = (10.0 + a as f64 * 0.1, 60.0);
+        for k in 0..PER_ANIMAL {
+            x += (u() - 0.5) * 0.02;
+            y += (u() - 0.5) * 0.01;
+            id.push(format!("animal-{a:03}"));
+            t.push(1_704_067_200_000_000i64 + k as i64 * 3_600_000_000);
+            lon.push(x);
+            lat.push(y);
+            lc.push(classes[(u() * 7.0) as usize]);
+        }
+    }
+    let time = Series::new("t".into(), t)
+        .cast(&DataType::Datetime(TimeUnit::Microseconds, None))
+        .unwrap();
+    DataFrame::new_infer_height(vec![
+        Column::new("id".into(), id),
+        time.into(),
+        Column::new("lon".into(), lon),
+        Column::new("lat".into(), lat),
+        Column::new("lc".into(), lc),
+    ])
+    .unwrap()
+}
+
+fn study(dir: &Path, file: &str) -> PathBuf {
+    let p = dir.join(format!("{file}.toml"));
+    std::fs::write(
+        &p,
+        format!(
+            "[study]\nname='bench'\noutput='out'\n[fixes]\nfiles=['{file}']\n[fixes.columns]\n\
+             animal='id'\ntime='t'\nlon='lon'\nlat='lat'\nclass='lc'\n[cleaning]\nmax_speed='3 m/s'\n\
+             [tracks]\ngap='6 h'\n"
+        ),
+    )
+    .unwrap();
+    p
+}
+
+fn child(study_path: &Path) {
+    let t0 = Instant::now();
+    let s = cairn::study::Study::load(study_path).unwrap();
+    let p = cairn::prepare::run(&s).unwrap();
+    let secs = t0.elapsed().as_secs_f64();
+    let n = p.summary.rows_read;
+    println!(
+        "{:<8} {:>9} fixes  {:>7.3} s  {:>10.0} fixes/s  steps {:>8}  peak {:>7.1} MiB",
+        study_path
+            .file_stem()
+            .unwrap()
+            .to_string_lossy()
+            .split('.')
+            .next()
+            .unwrap(),
+        n,
+        secs,
+        n as f64 / secs,
+        p.steps.len(),
+        peak_rss_mib()
+    );
+}
+
+fn main() {
+    let args: Vec<String> = std::env::args().collect();
+    if let Some(i) = args.iter().position(|a| a == "--child") {
+        child(Path::new(&args[i + 1]));
+        return;
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let mut df = table();
+    let size_mib = df.estimated_size() as f64 / 1048576.0;
+    let csv = dir.path().join("fixes.csv");
+    CsvWriter::new(std::fs::File::create(&csv).unwrap())
+        .finish(&mut df)
+        .unwrap();
+    let pq = dir.path().join("fixes.parquet");
+    ParquetWriter::new(std::fs::File::create(&pq).unwrap())
+        .finish(&mut df)
+        .unwrap();
+    drop(df);
+    println!(
+        "ingest bench: {} animals × {} fixes; in-memory table {size_mib:.1} MiB; threads {}",
+        ANIMALS,
+        PER_ANIMAL,
+        std::thread::available_parallelism().map_or(1, |n| n.get())
+    );
+    let exe = std::env::current_exe().unwrap();
+    for file in ["fixes.parquet", "fixes.csv"] {
+        let st = study(dir.path(), file);
+        let status = std::process::Command::new(&exe)
+            .arg("--child")
+            .arg(&st)
+            .status()
+            .unwrap();
+        assert!(status.success());
+    }
+}

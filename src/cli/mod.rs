@@ -1,0 +1,203 @@
+//! Command-line front end: clap definitions and dispatch only.
+//!
+//! Exit codes (also in `--help`): 0 finished cleanly; 1 finished, but rows or animals
+//! were excluded or skipped (see the exclusions log); 2 unusable input or usage.
+
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+
+use anyhow::{Context, Result, bail};
+use clap::{Parser, Subcommand};
+
+use crate::prepare::{self, Summary};
+use crate::study::{Study, TEMPLATE};
+
+const AFTER_HELP: &str = "\
+Exit codes: 0 finished cleanly; 1 finished, but some rows or animals were excluded or
+skipped (listed in exclusions.csv and the summary); 2 unusable input or usage error.";
+
+/// cairn: telemetry fixes → cleaned tracks → behavioural-state models → reports.
+#[derive(Debug, Parser)]
+#[command(name = "cairn", version, about, after_help = AFTER_HELP)]
+pub struct Cli {
+    /// Print only errors.
+    #[arg(short, long, global = true)]
+    pub quiet: bool,
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The commands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Write a commented study-file template (study.toml) into DIR.
+    Init {
+        /// Folder to write into (created if needed); an existing study.toml is kept.
+        dir: PathBuf,
+    },
+    /// Validate a study and report, per animal, fixes read, kept and excluded by reason.
+    ///
+    /// Writes nothing. Exit 0 when every row is usable, 1 when some were excluded.
+    Check {
+        /// The study file (study.toml).
+        study: PathBuf,
+    },
+    /// Ingest, clean and measure tracks; write the cleaned fixes, the step table, the
+    /// exclusions log and a JSON summary into the study's output folder.
+    Prepare {
+        /// The study file (study.toml).
+        study: PathBuf,
+        /// Also write the tables as CSV (as `output.csv = true` in the study).
+        #[arg(long)]
+        csv: bool,
+    },
+}
+
+/// How a command finished.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Outcome {
+    /// Everything was usable.
+    Clean,
+    /// Finished, but something was excluded or skipped.
+    WithExclusions,
+}
+
+impl Outcome {
+    /// The documented exit code.
+    pub fn exit_code(self) -> i32 {
+        match self {
+            Outcome::Clean => 0,
+            Outcome::WithExclusions => 1,
+        }
+    }
+}
+
+/// Runs a parsed command line.
+///
+/// # Errors
+/// Any failure, with context naming the file; the binary prints it and exits with 2.
+pub fn run(cli: Cli) -> Result<Outcome> {
+    match cli.command {
+        Command::Init { dir } => init(&dir, cli.quiet),
+        Command::Check { study } => {
+            let study = load(&study)?;
+            let p = prepare::run(&study)?;
+            if !cli.quiet {
+                print!("{}", render_check(&study, &p.summary));
+            }
+            Ok(outcome(&p.summary))
+        }
+        Command::Prepare { study, csv } => {
+            let study = load(&study)?;
+            let p = prepare::run(&study)?;
+            let written = prepare::write(&study, &p, csv || study.write_csv())?;
+            if !cli.quiet {
+                print!("{}", render_check(&study, &p.summary));
+                println!("\nwritten:");
+                for f in &written.files {
+                    println!("  {f}");
+                }
+            }
+            Ok(outcome(&p.summary))
+        }
+    }
+}
+
+fn load(path: &Path) -> Result<Study> {
+    Ok(Study::load(path)?)
+}
+
+fn outcome(s: &Summary) -> Outcome {
+    if s.excluded() > 0 {
+        Outcome::WithExclusions
+    } else {
+        Outcome::Clean
+    }
+}
+
+fn init(dir: &Path, quiet: bool) -> Result<Outcome> {
+    std::fs::create_dir_all(dir)
+        .with_context(|| format!("cannot create folder {}", dir.display()))?;
+    let path = dir.join("study.toml");
+    if path.exists() {
+        bail!("{} already exists; not overwriting it", path.display());
+    }
+    crate::io::write_atomic(&path, |w| {
+        use std::io::Write;
+        w.write_all(TEMPLATE.as_bytes()).map_err(|e| e.to_string())
+    })?;
+    if !quiet {
+        println!(
+            "wrote {}; edit it, then run `cairn check {}`",
+            path.display(),
+            path.display()
+        );
+    }
+    Ok(Outcome::Clean)
+}
+
+fn fmt_duration(s: f64) -> String {
+    if s < 120.0 {
+        format!("{s:.0} s")
+    } else if s < 7200.0 {
+        format!("{:.1} min", s / 60.0)
+    } else if s < 2.0 * 86_400.0 {
+        format!("{:.1} h", s / 3600.0)
+    } else {
+        format!("{:.1} d", s / 86_400.0)
+    }
+}
+
+/// The per-animal table that `check` and `prepare` print.
+pub fn render_check(study: &Study, s: &Summary) -> String {
+    let mut o = String::new();
+    let _ = writeln!(o, "study: {}  ({})", s.study, study.source().display());
+    let _ = writeln!(
+        o,
+        "rows read: {}   fixes kept: {}   excluded: {}   steps: {}",
+        s.rows_read,
+        s.fixes_kept,
+        s.excluded(),
+        s.steps
+    );
+    let _ = writeln!(
+        o,
+        "speed filter: {}   gap: {}",
+        s.speed_filter,
+        fmt_duration(s.gap_s)
+    );
+    let _ = writeln!(
+        o,
+        "\n{:<14} {:>7} {:>7} {:>8}  {:<20} {:>8} {:>9} {:>5}  classes kept",
+        "animal", "read", "kept", "excluded", "first fix (UTC)", "span", "median dt", "segs"
+    );
+    for a in &s.animals {
+        let excluded: usize = a.excluded.values().sum();
+        let classes: Vec<String> = a.classes.iter().map(|(c, n)| format!("{c}:{n}")).collect();
+        let _ = writeln!(
+            o,
+            "{:<14} {:>7} {:>7} {:>8}  {:<20} {:>8} {:>9} {:>5}  {}",
+            a.animal,
+            a.rows_read,
+            a.fixes_kept,
+            excluded,
+            a.first_utc.as_deref().unwrap_or("-"),
+            format!("{:.1} d", a.span_days),
+            a.median_interval_s
+                .map(fmt_duration)
+                .unwrap_or_else(|| "-".into()),
+            a.segments,
+            classes.join(" ")
+        );
+        if a.fixes_kept == 0 {
+            let _ = writeln!(o, "{:<14} (skipped: no usable fixes)", "");
+        }
+    }
+    if !s.excluded_by_reason.is_empty() {
+        let _ = writeln!(o, "\nexcluded rows by reason:");
+        for (r, n) in &s.excluded_by_reason {
+            let _ = writeln!(o, "  {r:<24} {n}");
+        }
+    }
+    o
+}

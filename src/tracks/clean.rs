@@ -1,0 +1,388 @@
+//! Cleaning: per-animal time order, invalid classes, duplicate times, outlier filters.
+//!
+//! For each animal, in this order:
+//! 1. sort fixes by time;
+//! 2. drop Argos class Z (invalid locations);
+//! 3. resolve duplicate timestamps: of the fixes sharing an instant, keep the best by the
+//!    quality order in [`super::class`] (class, then smaller error ellipse, then the one
+//!    read first) and log the others with the fix kept;
+//! 4. run the study's outlier filter:
+//!    - **max-speed**: a fix is an outlier when it can be reached from *both* of its
+//!      neighbours only faster than the limit (an end fix: from its one neighbour);
+//!    - **speed–distance–angle** (Freitas, Lydersen, Fedak & Kovacs 2008, Marine Mammal
+//!      Science 24:315–325): first the speed filter of McConnell, Chambers & Fedak (1992)
+//!      — a fix is an outlier when the root-mean-square of its speeds to the two previous
+//!      and two next fixes exceeds the limit — then, in one pass over what is left, a fix is
+//!      a spike when both its distances to its neighbours exceed the first distance limit
+//!      and the angle at the fix is below the first angle limit, or both exceed the
+//!      second distance limit and the angle is below the second angle limit.
+//!
+//!   Both speed filters remove the worst outlier first and then re-score its neighbours
+//!   (a max-heap with lazy invalidation), so a good fix next to a bad one is not removed
+//!   for its neighbour's fault, and the cost is O(n log n) per animal.
+//!
+//! Filter distances are great-circle distances on the mean Earth sphere (radius
+//! 6 371 008.8 m, the IUGG mean radius R1 — value from memory): the thresholds are coarse
+//! and the spherical error (< 0.5 %) is immaterial to them, while ellipsoidal geodesics
+//! would cost several times more. Step lengths ([`super::metrics`]) use the ellipsoid.
+
+use std::cmp::Ordering;
+use std::collections::BinaryHeap;
+
+use rayon::prelude::*;
+
+use super::class::LocClass;
+use super::exclusions::{Exclusion, Reason};
+use super::ingest::{Fix, Ingested};
+use crate::study::SpeedFilter;
+
+/// Mean Earth radius R1 = (2a + b)/3 of WGS84, metres (IUGG; value from memory).
+pub const MEAN_EARTH_RADIUS_M: f64 = 6_371_008.8;
+
+/// One animal's cleaned fixes, in time order with strictly increasing times.
+#[derive(Debug, Clone)]
+pub struct Track {
+    /// Animal id.
+    pub animal: String,
+    /// Fixes kept.
+    pub fixes: Vec<Fix>,
+}
+
+/// The result of cleaning.
+#[derive(Debug)]
+pub struct Cleaned {
+    /// Tracks sorted by animal id.
+    pub tracks: Vec<Track>,
+    /// Fixes removed by cleaning (ingest exclusions are not repeated here).
+    pub exclusions: Vec<Exclusion>,
+}
+
+/// Great-circle distance (haversine) on the mean sphere, metres.
+pub fn sphere_distance(lon1: f64, lat1: f64, lon2: f64, lat2: f64) -> f64 {
+    let (p1, p2) = (lat1.to_radians(), lat2.to_radians());
+    let dp = p2 - p1;
+    let dl = (lon2 - lon1).to_radians();
+    let h = (dp / 2.0).sin().powi(2) + p1.cos() * p2.cos() * (dl / 2.0).sin().powi(2);
+    2.0 * MEAN_EARTH_RADIUS_M * h.sqrt().min(1.0).asin()
+}
+
+/// Initial great-circle bearing on the sphere, degrees clockwise from north.
+fn sphere_bearing(lon1: f64, lat1: f64, lon2: f64, lat2: f64) -> f64 {
+    let (p1, p2) = (lat1.to_radians(), lat2.to_radians());
+    let dl = (lon2 - lon1).to_radians();
+    let y = dl.sin() * p2.cos();
+    let x = p1.cos() * p2.sin() - p1.sin() * p2.cos() * dl.cos();
+    y.atan2(x).to_degrees()
+}
+
+/// Cleans every animal's fixes (in parallel; the result does not depend on thread count).
+pub fn clean(ingested: Ingested, files: &[String], filter: SpeedFilter) -> Cleaned {
+    let Ingested { animals, fixes, .. } = ingested;
+    let mut per_animal: Vec<Vec<Fix>> = vec![Vec::new(); animals.len()];
+    for f in fixes {
+        per_animal[f.animal as usize].push(f);
+    }
+    let mut jobs: Vec<(usize, Vec<Fix>)> = per_animal.into_iter().enumerate().collect();
+    jobs.sort_by(|a, b| animals[a.0].cmp(&animals[b.0]));
+    let results: Vec<(Track, Vec<Exclusion>)> = jobs
+        .into_par_iter()
+        .map(|(a, fixes)| clean_animal(&animals[a], fixes, files, filter))
+        .collect();
+    let mut tracks = Vec::with_capacity(results.len());
+    let mut exclusions = Vec::new();
+    for (t, e) in results {
+        exclusions.extend(e);
+        tracks.push(t);
+    }
+    Cleaned { tracks, exclusions }
+}
+
+fn log(
+    files: &[String],
+    animal: &str,
+    f: &Fix,
+    column: &str,
+    reason: Reason,
+    detail: String,
+) -> Exclusion {
+    Exclusion {
+        file: files.get(f.file as usize).cloned().unwrap_or_default(),
+        row: u64::from(f.row),
+        animal: animal.to_string(),
+        column: column.to_string(),
+        reason,
+        detail,
+    }
+}
+
+/// Quality order for fixes at the same instant: better first.
+fn quality(a: &Fix, b: &Fix) -> Ordering {
+    let ellipse = |f: &Fix| {
+        if f.semi_major.is_nan() {
+            f64::INFINITY
+        } else {
+            f.semi_major
+        }
+    };
+    a.class
+        .rank()
+        .cmp(&b.class.rank())
+        .then(ellipse(a).total_cmp(&ellipse(b)))
+        .then(a.file.cmp(&b.file))
+        .then(a.row.cmp(&b.row))
+}
+
+/// Cleans one animal's fixes.
+pub fn clean_animal(
+    animal: &str,
+    mut fixes: Vec<Fix>,
+    files: &[String],
+    filter: SpeedFilter,
+) -> (Track, Vec<Exclusion>) {
+    let mut excl = Vec::new();
+    fixes.sort_by(|a, b| a.time_us.cmp(&b.time_us).then_with(|| quality(a, b)));
+    let mut kept: Vec<Fix> = Vec::with_capacity(fixes.len());
+    for f in fixes {
+        if f.class == LocClass::ArgosZ {
+            excl.push(log(
+                files,
+                animal,
+                &f,
+                "class",
+                Reason::InvalidClassZ,
+                "Argos class Z".into(),
+            ));
+            continue;
+        }
+        match kept.last() {
+            Some(k) if k.time_us == f.time_us => {
+                let detail = format!(
+                    "same time as {} row {} (class {}), which was kept",
+                    files
+                        .get(k.file as usize)
+                        .map(String::as_str)
+                        .unwrap_or("?"),
+                    k.row,
+                    k.class
+                );
+                excl.push(log(
+                    files,
+                    animal,
+                    &f,
+                    "time",
+                    Reason::DuplicateTime,
+                    detail,
+                ));
+            }
+            _ => kept.push(f),
+        }
+    }
+    let removed = match filter {
+        SpeedFilter::None => Vec::new(),
+        SpeedFilter::MaxSpeed { max_speed } => {
+            speed_filter(&kept, max_speed, SpeedScore::BothNeighbours)
+        }
+        SpeedFilter::SpeedDistanceAngle {
+            max_speed,
+            distances,
+            angles,
+        } => {
+            let mut r = speed_filter(&kept, max_speed, SpeedScore::RootMeanSquare);
+            let alive: Vec<usize> = {
+                let gone: std::collections::HashSet<usize> = r.iter().map(|(i, _, _)| *i).collect();
+                (0..kept.len()).filter(|i| !gone.contains(i)).collect()
+            };
+            r.extend(spikes(&kept, &alive, distances, angles));
+            r
+        }
+    };
+    let mut drop = vec![false; kept.len()];
+    for (i, reason, detail) in removed {
+        drop[i] = true;
+        excl.push(log(files, animal, &kept[i], "lon/lat", reason, detail));
+    }
+    let fixes = kept
+        .into_iter()
+        .zip(drop)
+        .filter_map(|(f, d)| (!d).then_some(f))
+        .collect();
+    (
+        Track {
+            animal: animal.to_string(),
+            fixes,
+        },
+        excl,
+    )
+}
+
+#[derive(Clone, Copy)]
+enum SpeedScore {
+    /// min(speed from previous, speed to next); one neighbour at the ends.
+    BothNeighbours,
+    /// McConnell et al. (1992): RMS of speeds to up to two fixes either side.
+    RootMeanSquare,
+}
+
+fn speed(a: &Fix, b: &Fix) -> f64 {
+    let dt = (b.time_us - a.time_us).abs() as f64 * 1e-6;
+    sphere_distance(a.lon, a.lat, b.lon, b.lat) / dt
+}
+
+#[derive(PartialEq)]
+struct Candidate {
+    score: f64,
+    index: usize,
+    version: u32,
+}
+impl Eq for Candidate {}
+impl PartialOrd for Candidate {
+    fn partial_cmp(&self, other: &Self) -> Option<Ordering> {
+        Some(self.cmp(other))
+    }
+}
+impl Ord for Candidate {
+    fn cmp(&self, other: &Self) -> Ordering {
+        // Highest score first; ties broken towards the earlier fix, so results are exact
+        // and reproducible.
+        self.score
+            .total_cmp(&other.score)
+            .then(other.index.cmp(&self.index))
+    }
+}
+
+/// Iterative speed filter. Returns `(index, reason, detail)` of removed fixes.
+fn speed_filter(fixes: &[Fix], vmax: f64, kind: SpeedScore) -> Vec<(usize, Reason, String)> {
+    let n = fixes.len();
+    if n < 2 {
+        return Vec::new();
+    }
+    // Doubly linked list over the fixes still kept.
+    let mut prev: Vec<Option<usize>> = (0..n).map(|i| i.checked_sub(1)).collect();
+    let mut next: Vec<Option<usize>> = (0..n).map(|i| (i + 1 < n).then_some(i + 1)).collect();
+    let mut version = vec![0u32; n];
+    let mut alive = vec![true; n];
+
+    let score = |i: usize, prev: &[Option<usize>], next: &[Option<usize>]| -> f64 {
+        let p1 = prev[i];
+        let n1 = next[i];
+        match kind {
+            SpeedScore::BothNeighbours => match (p1, n1) {
+                (Some(p), Some(q)) => speed(&fixes[p], &fixes[i]).min(speed(&fixes[i], &fixes[q])),
+                (Some(p), None) => speed(&fixes[p], &fixes[i]),
+                (None, Some(q)) => speed(&fixes[i], &fixes[q]),
+                (None, None) => 0.0,
+            },
+            SpeedScore::RootMeanSquare => {
+                let p2 = p1.and_then(|p| prev[p]);
+                let n2 = n1.and_then(|q| next[q]);
+                let (mut sum, mut k) = (0.0, 0u32);
+                for j in [p2, p1, n1, n2].into_iter().flatten() {
+                    sum += speed(&fixes[j], &fixes[i]).powi(2);
+                    k += 1;
+                }
+                if k == 0 {
+                    0.0
+                } else {
+                    (sum / f64::from(k)).sqrt()
+                }
+            }
+        }
+    };
+    let hops = match kind {
+        SpeedScore::BothNeighbours => 1,
+        SpeedScore::RootMeanSquare => 2,
+    };
+    let mut heap: BinaryHeap<Candidate> = (0..n)
+        .map(|i| Candidate {
+            score: score(i, &prev, &next),
+            index: i,
+            version: 0,
+        })
+        .collect();
+    let mut removed = Vec::new();
+    while let Some(c) = heap.pop() {
+        if !alive[c.index] || c.version != version[c.index] {
+            continue;
+        }
+        if c.score <= vmax {
+            break;
+        }
+        let i = c.index;
+        alive[i] = false;
+        let detail = match kind {
+            SpeedScore::BothNeighbours => format!(
+                "reached from its neighbours only at ≥ {:.2} m/s (limit {vmax:.2} m/s)",
+                c.score
+            ),
+            SpeedScore::RootMeanSquare => format!(
+                "root-mean-square speed to neighbouring fixes {:.2} m/s (limit {vmax:.2} m/s)",
+                c.score
+            ),
+        };
+        removed.push((i, Reason::SpeedFilter, detail));
+        // Unlink and re-score the fixes whose neighbourhood changed.
+        let (p, q) = (prev[i], next[i]);
+        if let Some(p) = p {
+            next[p] = q;
+        }
+        if let Some(q) = q {
+            prev[q] = p;
+        }
+        let mut touched = Vec::with_capacity(4);
+        let (mut a, mut b) = (p, q);
+        for _ in 0..hops {
+            if let Some(x) = a {
+                touched.push(x);
+                a = prev[x];
+            }
+            if let Some(x) = b {
+                touched.push(x);
+                b = next[x];
+            }
+        }
+        for j in touched {
+            version[j] += 1;
+            heap.push(Candidate {
+                score: score(j, &prev, &next),
+                index: j,
+                version: version[j],
+            });
+        }
+    }
+    removed.sort_by_key(|r| r.0);
+    removed
+}
+
+/// Spike step of the speed–distance–angle filter over the fixes `alive` (in order).
+fn spikes(
+    fixes: &[Fix],
+    alive: &[usize],
+    dist: [f64; 2],
+    ang: [f64; 2],
+) -> Vec<(usize, Reason, String)> {
+    let mut out = Vec::new();
+    for w in alive.windows(3) {
+        let (a, b, c) = (&fixes[w[0]], &fixes[w[1]], &fixes[w[2]]);
+        let d1 = sphere_distance(a.lon, a.lat, b.lon, b.lat);
+        let d2 = sphere_distance(b.lon, b.lat, c.lon, c.lat);
+        let angle = {
+            let back = sphere_bearing(b.lon, b.lat, a.lon, a.lat);
+            let fwd = sphere_bearing(b.lon, b.lat, c.lon, c.lat);
+            let d = (back - fwd).rem_euclid(360.0);
+            if d > 180.0 { 360.0 - d } else { d }
+        };
+        let spike = (d1 > dist[0] && d2 > dist[0] && angle < ang[0])
+            || (d1 > dist[1] && d2 > dist[1] && angle < ang[1]);
+        if spike {
+            out.push((
+                w[1],
+                Reason::SpikeFilter,
+                format!(
+                    "spike: {:.0} m and {:.0} m to its neighbours with an angle of {angle:.1}°",
+                    d1, d2
+                ),
+            ));
+        }
+    }
+    out
+}

@@ -1,0 +1,12 @@
+//! Tracks: from rows in input files to cleaned per-animal tracks and a step table.
+//!
+//! [`ingest`] reads and validates rows, [`clean`] orders, de-duplicates and filters each
+//! animal's fixes, [`metrics`] splits tracks at gaps and computes step lengths, bearings
+//! and turning angles. Every row that does not make it is an [`exclusions::Exclusion`].
+
+pub mod class;
+pub mod clean;
+pub mod exclusions;
+pub mod ingest;
+pub mod metrics;
+pub mod timeparse;

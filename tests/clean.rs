@@ -1,0 +1,129 @@
+//! Cleaning: speed filters and spikes on hand-built tracks whose answers are known.
+
+use cairn::study::SpeedFilter;
+use cairn::tracks::class::LocClass;
+use cairn::tracks::clean::{clean_animal, sphere_distance};
+use cairn::tracks::exclusions::Reason;
+use cairn::tracks::ingest::Fix;
+
+/// Fixes at hourly intervals; positions in (lon, lat) degrees.
+fn fixes(points: &[(f64, f64)]) -> Vec<Fix> {
+    points
+        .iter()
+        .enumerate()
+        .map(|(i, &(lon, lat))| Fix {
+            animal: 0,
+            time_us: i as i64 * 3_600_000_000,
+            lon,
+            lat,
+            class: LocClass::Argos2,
+            semi_major: f64::NAN,
+            semi_minor: f64::NAN,
+            orientation: f64::NAN,
+            file: 0,
+            row: i as u32 + 1,
+        })
+        .collect()
+}
+
+/// A track heading north along 10° E at ~0.93 m/s (0.03° latitude per hour).
+fn steady(n: usize) -> Vec<(f64, f64)> {
+    (0..n).map(|i| (10.0, 60.0 + 0.03 * i as f64)).collect()
+}
+
+fn removed(points: &[(f64, f64)], filter: SpeedFilter) -> Vec<(u32, Reason)> {
+    let (_, ex) = clean_animal("a", fixes(points), &["f.csv".into()], filter);
+    ex.iter().map(|e| (e.row as u32, e.reason)).collect()
+}
+
+#[test]
+fn haversine_matches_a_known_arc() {
+    // A quarter of a great circle on the sphere: π/2 · R.
+    let d = sphere_distance(0.0, 0.0, 90.0, 0.0);
+    assert!((d - std::f64::consts::FRAC_PI_2 * 6_371_008.8).abs() < 1e-6);
+}
+
+#[test]
+fn a_steady_track_loses_nothing() {
+    for f in [
+        SpeedFilter::MaxSpeed { max_speed: 2.0 },
+        SpeedFilter::SpeedDistanceAngle {
+            max_speed: 2.0,
+            distances: [2500.0, 5000.0],
+            angles: [15.0, 25.0],
+        },
+    ] {
+        assert!(removed(&steady(30), f).is_empty());
+    }
+}
+
+#[test]
+fn max_speed_removes_the_outlier_not_its_neighbours() {
+    let mut p = steady(20);
+    p[10].0 += 0.5; // ~19 km east of the line: ~5 m/s from both neighbours
+    assert_eq!(
+        removed(&p, SpeedFilter::MaxSpeed { max_speed: 2.0 }),
+        vec![(11, Reason::SpeedFilter)]
+    );
+}
+
+#[test]
+fn root_mean_square_filter_removes_two_adjacent_outliers() {
+    // Two consecutive bad fixes: a filter that judged each fix by one neighbour would keep
+    // them (they are close to each other); the RMS over two fixes either side does not.
+    let mut p = steady(30);
+    p[12].0 += 0.6;
+    p[13].0 += 0.6;
+    let r = removed(
+        &p,
+        SpeedFilter::SpeedDistanceAngle {
+            max_speed: 2.0,
+            distances: [2500.0, 5000.0],
+            angles: [15.0, 25.0],
+        },
+    );
+    assert_eq!(
+        r,
+        vec![(13, Reason::SpeedFilter), (14, Reason::SpeedFilter)]
+    );
+}
+
+#[test]
+fn spikes_are_removed_by_distance_and_angle() {
+    // A fix 3 km off a slow track and back: both distances > 2.5 km, angle ≈ 2·atan(0.5/3)
+    // ≈ 19° → not a spike under (2.5 km, 15°); but a 6 km excursion (angle ≈ 9.5°) is.
+    let slow: Vec<(f64, f64)> = (0..12).map(|i| (10.0, 60.0 + 0.0045 * i as f64)).collect();
+    let filter = SpeedFilter::SpeedDistanceAngle {
+        max_speed: 5.0,
+        distances: [2500.0, 5000.0],
+        angles: [15.0, 25.0],
+    };
+    let mut a = slow.clone();
+    a[6].0 += 3000.0 / (111_320.0 * 60f64.to_radians().cos());
+    let r = removed(&a, filter);
+    assert!(
+        r.is_empty(),
+        "a 19° excursion of 3 km is below both rules: {r:?}"
+    );
+    let mut b = slow.clone();
+    b[6].0 += 6000.0 / (111_320.0 * 60f64.to_radians().cos());
+    assert_eq!(removed(&b, filter), vec![(7, Reason::SpikeFilter)]);
+}
+
+#[test]
+fn z_and_duplicates_are_logged_with_rows() {
+    let mut f = fixes(&steady(5));
+    f[2].class = LocClass::ArgosZ;
+    let mut dup = f[3];
+    dup.class = LocClass::ArgosB;
+    dup.row = 99;
+    f.push(dup);
+    let (t, ex) = clean_animal("a", f, &["f.csv".into()], SpeedFilter::None);
+    let r: Vec<(u64, Reason)> = ex.iter().map(|e| (e.row, e.reason)).collect();
+    assert_eq!(
+        r,
+        vec![(3, Reason::InvalidClassZ), (99, Reason::DuplicateTime)]
+    );
+    assert_eq!(t.fixes.len(), 4);
+    assert!(t.fixes.windows(2).all(|w| w[0].time_us < w[1].time_us));
+}
