@@ -189,8 +189,12 @@ pub fn render_check(study: &Study, s: &Summary) -> String {
             a.segments,
             classes.join(" ")
         );
+        if !a.excluded.is_empty() {
+            let reasons: Vec<String> = a.excluded.iter().map(|(r, n)| format!("{r} {n}")).collect();
+            let _ = writeln!(o, "{:<14} excluded: {}", "", reasons.join(", "));
+        }
         if a.fixes_kept == 0 {
-            let _ = writeln!(o, "{:<14} (skipped: no usable fixes)", "");
+            let _ = writeln!(o, "{:<14} skipped: no usable fixes", "");
         }
     }
     if !s.excluded_by_reason.is_empty() {
