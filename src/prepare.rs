@@ -113,7 +113,11 @@ pub fn run(study: &Study) -> Result<Prepared, IngestError> {
         })
         .collect();
     let mut exclusions = std::mem::take(&mut ingested.exclusions);
-    let cleaned = clean::clean(ingested, &files, study.speed_filter());
+    let cleaned = clean::clean(
+        ingested,
+        &clean::Labels::from_study(study),
+        study.speed_filter(),
+    );
     exclusions.extend(cleaned.exclusions);
     let steps = metrics::steps(&cleaned.tracks, study.gap_s());
     let summary = summarise(study, file_rows, &cleaned.tracks, &steps, &exclusions);

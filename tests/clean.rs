@@ -2,7 +2,7 @@
 
 use cairn::study::SpeedFilter;
 use cairn::tracks::class::LocClass;
-use cairn::tracks::clean::{clean_animal, sphere_distance};
+use cairn::tracks::clean::{Labels, clean_animal, sphere_distance};
 use cairn::tracks::exclusions::Reason;
 use cairn::tracks::ingest::Fix;
 
@@ -32,7 +32,7 @@ fn steady(n: usize) -> Vec<(f64, f64)> {
 }
 
 fn removed(points: &[(f64, f64)], filter: SpeedFilter) -> Vec<(u32, Reason)> {
-    let (_, ex) = clean_animal("a", fixes(points), &["f.csv".into()], filter);
+    let (_, ex) = clean_animal("a", fixes(points), &Labels::generic(&["f.csv"]), filter);
     ex.iter().map(|e| (e.row as u32, e.reason)).collect()
 }
 
@@ -118,7 +118,7 @@ fn z_and_duplicates_are_logged_with_rows() {
     dup.class = LocClass::ArgosB;
     dup.row = 99;
     f.push(dup);
-    let (t, ex) = clean_animal("a", f, &["f.csv".into()], SpeedFilter::None);
+    let (t, ex) = clean_animal("a", f, &Labels::generic(&["f.csv"]), SpeedFilter::None);
     let r: Vec<(u64, Reason)> = ex.iter().map(|e| (e.row, e.reason)).collect();
     assert_eq!(
         r,

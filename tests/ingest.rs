@@ -110,7 +110,7 @@ fn empty_ids_unknown_classes_and_class_z() {
             (
                 4,
                 Reason::InvalidClassZ,
-                "class".into(),
+                "lc".into(),
                 "Argos class Z".into()
             ),
         ]

@@ -57,6 +57,50 @@ pub struct Cleaned {
     pub exclusions: Vec<Exclusion>,
 }
 
+/// Names used in exclusion entries: input files and the data columns at fault.
+#[derive(Debug, Clone)]
+pub struct Labels {
+    /// Input files, indexed by [`Fix::file`].
+    pub files: Vec<String>,
+    /// Time column (duplicates).
+    pub time: String,
+    /// Class column, or tag column when there is no class column (class Z).
+    pub class: String,
+    /// Longitude and latitude columns (filters), e.g. `lon+lat`.
+    pub position: String,
+}
+
+impl Labels {
+    /// Labels from a study's inputs and column mapping.
+    pub fn from_study(study: &crate::study::Study) -> Labels {
+        let c = study.columns();
+        Labels {
+            files: study
+                .inputs()
+                .iter()
+                .map(|i| i.path.display().to_string())
+                .collect(),
+            time: c.time.clone(),
+            class: c
+                .class
+                .clone()
+                .or_else(|| c.tag.clone())
+                .unwrap_or_default(),
+            position: format!("{}+{}", c.lon, c.lat),
+        }
+    }
+
+    /// Generic labels (`time`, `class`, `lon+lat`) for the given files.
+    pub fn generic(files: &[&str]) -> Labels {
+        Labels {
+            files: files.iter().map(|f| f.to_string()).collect(),
+            time: "time".into(),
+            class: "class".into(),
+            position: "lon+lat".into(),
+        }
+    }
+}
+
 /// Great-circle distance (haversine) on the mean sphere, metres.
 pub fn sphere_distance(lon1: f64, lat1: f64, lon2: f64, lat2: f64) -> f64 {
     let (p1, p2) = (lat1.to_radians(), lat2.to_radians());
@@ -76,7 +120,7 @@ fn sphere_bearing(lon1: f64, lat1: f64, lon2: f64, lat2: f64) -> f64 {
 }
 
 /// Cleans every animal's fixes (in parallel; the result does not depend on thread count).
-pub fn clean(ingested: Ingested, files: &[String], filter: SpeedFilter) -> Cleaned {
+pub fn clean(ingested: Ingested, labels: &Labels, filter: SpeedFilter) -> Cleaned {
     let Ingested { animals, fixes, .. } = ingested;
     let mut per_animal: Vec<Vec<Fix>> = vec![Vec::new(); animals.len()];
     for f in fixes {
@@ -86,7 +130,7 @@ pub fn clean(ingested: Ingested, files: &[String], filter: SpeedFilter) -> Clean
     jobs.sort_by(|a, b| animals[a.0].cmp(&animals[b.0]));
     let results: Vec<(Track, Vec<Exclusion>)> = jobs
         .into_par_iter()
-        .map(|(a, fixes)| clean_animal(&animals[a], fixes, files, filter))
+        .map(|(a, fixes)| clean_animal(&animals[a], fixes, labels, filter))
         .collect();
     let mut tracks = Vec::with_capacity(results.len());
     let mut exclusions = Vec::new();
@@ -98,7 +142,7 @@ pub fn clean(ingested: Ingested, files: &[String], filter: SpeedFilter) -> Clean
 }
 
 fn log(
-    files: &[String],
+    labels: &Labels,
     animal: &str,
     f: &Fix,
     column: &str,
@@ -106,7 +150,11 @@ fn log(
     detail: String,
 ) -> Exclusion {
     Exclusion {
-        file: files.get(f.file as usize).cloned().unwrap_or_default(),
+        file: labels
+            .files
+            .get(f.file as usize)
+            .cloned()
+            .unwrap_or_default(),
         row: u64::from(f.row),
         animal: animal.to_string(),
         column: column.to_string(),
@@ -136,7 +184,7 @@ fn quality(a: &Fix, b: &Fix) -> Ordering {
 pub fn clean_animal(
     animal: &str,
     mut fixes: Vec<Fix>,
-    files: &[String],
+    labels: &Labels,
     filter: SpeedFilter,
 ) -> (Track, Vec<Exclusion>) {
     let mut excl = Vec::new();
@@ -145,10 +193,10 @@ pub fn clean_animal(
     for f in fixes {
         if f.class == LocClass::ArgosZ {
             excl.push(log(
-                files,
+                labels,
                 animal,
                 &f,
-                "class",
+                &labels.class,
                 Reason::InvalidClassZ,
                 "Argos class Z".into(),
             ));
@@ -158,7 +206,8 @@ pub fn clean_animal(
             Some(k) if k.time_us == f.time_us => {
                 let detail = format!(
                     "same time as {} row {} (class {}), which was kept",
-                    files
+                    labels
+                        .files
                         .get(k.file as usize)
                         .map(String::as_str)
                         .unwrap_or("?"),
@@ -166,10 +215,10 @@ pub fn clean_animal(
                     k.class
                 );
                 excl.push(log(
-                    files,
+                    labels,
                     animal,
                     &f,
-                    "time",
+                    &labels.time,
                     Reason::DuplicateTime,
                     detail,
                 ));
@@ -199,7 +248,14 @@ pub fn clean_animal(
     let mut drop = vec![false; kept.len()];
     for (i, reason, detail) in removed {
         drop[i] = true;
-        excl.push(log(files, animal, &kept[i], "lon/lat", reason, detail));
+        excl.push(log(
+            labels,
+            animal,
+            &kept[i],
+            &labels.position,
+            reason,
+            detail,
+        ));
     }
     let fixes = kept
         .into_iter()

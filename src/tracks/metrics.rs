@@ -31,7 +31,7 @@ use super::class::LocClass;
 use super::clean::Track;
 
 /// Steps in columnar form; one row per step.
-#[derive(Debug, Clone, Default, PartialEq)]
+#[derive(Debug, Clone, Default)]
 pub struct Steps {
     /// Animal ids, one per track (indexed by [`Steps::animal`]).
     pub animals: Vec<String>,
