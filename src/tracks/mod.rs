@@ -9,4 +9,5 @@ pub mod clean;
 pub mod exclusions;
 pub mod ingest;
 pub mod metrics;
+pub mod regular;
 pub mod timeparse;
