@@ -159,7 +159,7 @@ pub fn steps_frame(steps: &Steps) -> PolarsResult<DataFrame> {
         .iter()
         .map(|&i| steps.animals[i as usize].as_str())
         .collect();
-    let class: Vec<&str> = steps.class.iter().map(|c| c.code()).collect();
+    let class: Vec<Option<&str>> = steps.class.iter().map(|c| c.map(|c| c.code())).collect();
     DataFrame::new_infer_height(vec![
         Column::new("animal".into(), animal),
         Column::new("segment".into(), steps.segment.clone()),
@@ -171,6 +171,40 @@ pub fn steps_frame(steps: &Steps) -> PolarsResult<DataFrame> {
         Column::new("turn_rad".into(), nullable(&steps.turn_rad)),
         Column::new("dt_s".into(), steps.dt_s.clone()),
         Column::new("class".into(), class),
+        Column::new("location_se_m".into(), nullable(&steps.se_m)),
+    ])
+}
+
+/// The smoothed locations as a frame.
+///
+/// # Errors
+/// A polars error if the frame cannot be built.
+pub fn smoothed_frame(s: &crate::tracks::grid::Smoothed) -> PolarsResult<DataFrame> {
+    let p = &s.points;
+    let animal: Vec<&str> = p
+        .iter()
+        .map(|q| s.paths[q.animal as usize].animal.as_str())
+        .collect();
+    let col = |name: &str, f: fn(&crate::tracks::grid::SmoothedPoint) -> f64| {
+        Column::new(name.into(), p.iter().map(f).collect::<Vec<f64>>())
+    };
+    DataFrame::new_infer_height(vec![
+        Column::new("animal".into(), animal),
+        Column::new(
+            "segment".into(),
+            p.iter().map(|q| q.segment).collect::<Vec<_>>(),
+        ),
+        utc_column("time_utc", p.iter().map(|q| q.time_us).collect())?,
+        col("lon", |q| q.lon),
+        col("lat", |q| q.lat),
+        col("sd_x_m", |q| q.sd_x),
+        col("sd_y_m", |q| q.sd_y),
+        col("cov_xy_m2", |q| q.cov_xy),
+        col("se_m", |q| q.se_m),
+        Column::new(
+            "large_se".into(),
+            p.iter().map(|q| q.large_se).collect::<Vec<_>>(),
+        ),
     ])
 }
 

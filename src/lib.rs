@@ -2,13 +2,17 @@
 //!
 //! The library follows the data: [`study`] validates the study file, [`tracks`] ingests,
 //! cleans, smooths and measures tracks, [`geo`] holds sun position, projections and rasters, [`prepare`] runs those stages and writes their tables
-//! atomically, and [`cli`] is the command-line front end. See ARCHITECTURE.md for the map.
+//! atomically, [`hmm`] is the behavioural-state engine and [`modelling`] its fit stage,
+//! [`summaries`] and [`report`] turn results into tables and figures, and [`cli`] is the command-line front end. See ARCHITECTURE.md for the map.
 
 #![forbid(unsafe_code)]
 
 pub mod cli;
 pub mod geo;
+pub mod hmm;
 pub mod io;
+pub mod modelling;
+pub mod prec;
 pub mod prepare;
 pub mod report;
 pub mod study;

@@ -6,7 +6,8 @@
 //! | file | content |
 //! |---|---|
 //! | `fixes_clean.parquet` | cleaned fixes, one row per fix, with source file and row |
-//! | `steps.parquet` | one row per step (see [`crate::tracks::metrics`]) |
+//! | `track_smoothed.parquet` | with `[grid]`: smoothed locations on the regular grid, with standard errors |
+//! | `steps.parquet` | one row per step (see [`crate::tracks::metrics`]); of the smoothed path with `[grid]` |
 //! | `exclusions.csv` | every input row that was not kept, with reason |
 //! | `prepare_summary.json` | per-animal counts, spans, intervals, class mix |
 //! | `*.csv` | CSV copies of the Parquet tables when `output.csv = true` or `--csv` |
@@ -19,6 +20,7 @@ use crate::io::{self, WriteError};
 use crate::study::Study;
 use crate::tracks::clean::{self, Track};
 use crate::tracks::exclusions::Exclusion;
+use crate::tracks::grid::{self, Smoothed, SmootherRecord};
 use crate::tracks::ingest::{self, IngestError};
 use crate::tracks::metrics::{self, Steps};
 use crate::tracks::timeparse::format_utc;
@@ -28,7 +30,9 @@ use crate::tracks::timeparse::format_utc;
 pub struct Prepared {
     /// Cleaned tracks, sorted by animal.
     pub tracks: Vec<Track>,
-    /// Step table.
+    /// Smoothed paths on the regular grid, when the study asks for them.
+    pub smoothed: Option<Smoothed>,
+    /// Step table (of the smoothed paths when there are any, else of the cleaned fixes).
     pub steps: Steps,
     /// Every excluded row: ingest first (file order), then cleaning (animal order).
     pub exclusions: Vec<Exclusion>,
@@ -81,12 +85,22 @@ pub struct Summary {
     pub steps: usize,
     pub excluded_by_reason: BTreeMap<String, usize>,
     pub animals: Vec<AnimalSummary>,
+    /// The smoother's record per animal, when `[grid]` is set.
+    pub smoother: Option<Vec<SmootherRecord>>,
 }
 
 impl Summary {
     /// Number of rows excluded in total.
     pub fn excluded(&self) -> usize {
         self.excluded_by_reason.values().sum()
+    }
+    /// Animals the smoother skipped, with the reason.
+    pub fn skipped(&self) -> Vec<(&str, &str)> {
+        self.smoother
+            .iter()
+            .flatten()
+            .filter_map(|r| r.reason.as_deref().map(|why| (r.animal.as_str(), why)))
+            .collect()
     }
 }
 
@@ -119,10 +133,16 @@ pub fn run(study: &Study) -> Result<Prepared, IngestError> {
         study.speed_filter(),
     );
     exclusions.extend(cleaned.exclusions);
-    let steps = metrics::steps(&cleaned.tracks, study.gap_s());
-    let summary = summarise(study, file_rows, &cleaned.tracks, &steps, &exclusions);
+    let smoothed = study.grid().map(|cfg| grid::smooth(&cleaned.tracks, cfg));
+    let steps = match &smoothed {
+        Some(s) => metrics::steps_of_paths(&s.paths),
+        None => metrics::steps(&cleaned.tracks, study.gap_s()),
+    };
+    let mut summary = summarise(study, file_rows, &cleaned.tracks, &steps, &exclusions);
+    summary.smoother = smoothed.as_ref().map(|s| s.records.clone());
     Ok(Prepared {
         tracks: cleaned.tracks,
+        smoothed,
         steps,
         exclusions,
         summary,
@@ -163,11 +183,16 @@ fn summarise(
         segments: 0,
         steps: 0,
     };
-    let mut steps_per = vec![0usize; tracks.len()];
-    for &a in &steps.animal {
-        steps_per[a as usize] += 1;
+    // Steps and segments per animal, from the step table (smoothed or not).
+    let mut steps_per: BTreeMap<&str, (usize, std::collections::BTreeSet<u32>)> = BTreeMap::new();
+    for (&a, &seg) in steps.animal.iter().zip(&steps.segment) {
+        let e = steps_per
+            .entry(steps.animals[a as usize].as_str())
+            .or_default();
+        e.0 += 1;
+        e.1.insert(seg);
     }
-    for (ti, t) in tracks.iter().enumerate() {
+    for t in tracks {
         let mut s = blank(&t.animal);
         s.fixes_kept = t.fixes.len();
         s.rows_read = t.fixes.len();
@@ -185,11 +210,10 @@ fn summarise(
         for f in &t.fixes {
             *s.classes.entry(f.class.code().to_string()).or_default() += 1;
         }
-        s.segments = metrics::segments(t, study.gap_s())
-            .iter()
-            .filter(|(a, b)| b - a >= 2)
-            .count();
-        s.steps = steps_per[ti];
+        if let Some((n, segs)) = steps_per.get(t.animal.as_str()) {
+            s.steps = *n;
+            s.segments = segs.len();
+        }
         animals.insert(t.animal.clone(), s);
     }
     let mut by_reason: BTreeMap<String, usize> = BTreeMap::new();
@@ -218,6 +242,7 @@ fn summarise(
         steps: steps.len(),
         excluded_by_reason: by_reason,
         animals,
+        smoother: None,
     }
 }
 
@@ -254,9 +279,19 @@ pub fn write(study: &Study, p: &Prepared, csv: bool) -> Result<Written, WriteErr
     io::write_parquet(&put("fixes_clean.parquet"), &mut fixes)?;
     io::write_parquet(&put("steps.parquet"), &mut steps)?;
     io::write_csv(&put("exclusions.csv"), &mut excl)?;
+    let mut smoothed = match &p.smoothed {
+        Some(s) => Some(io::smoothed_frame(s).map_err(|e| frame_err("track_smoothed", e))?),
+        None => None,
+    };
+    if let Some(df) = smoothed.as_mut() {
+        io::write_parquet(&put("track_smoothed.parquet"), df)?;
+    }
     if csv {
         io::write_csv(&put("fixes_clean.csv"), &mut fixes)?;
         io::write_csv(&put("steps.csv"), &mut steps)?;
+        if let Some(df) = smoothed.as_mut() {
+            io::write_csv(&put("track_smoothed.csv"), df)?;
+        }
     }
     let json = serde_json::to_string_pretty(&p.summary).map_err(|e| WriteError {
         path: out.join("prepare_summary.json"),

@@ -19,6 +19,7 @@ fn same(a: &Steps, b: &Steps) -> bool {
             (&a.bearing_deg, &b.bearing_deg),
             (&a.turn_rad, &b.turn_rad),
             (&a.dt_s, &b.dt_s),
+            (&a.se_m, &b.se_m),
         ]
         .iter()
         .all(|(x, y)| bits(x) == bits(y))

@@ -51,6 +51,28 @@ pub enum Command {
         #[arg(long)]
         csv: bool,
     },
+    /// Fit the study's candidate hidden Markov models to the prepared step table, compare
+    /// them (AIC, BIC), select one by the study's rule and decode it.
+    ///
+    /// Reads steps.parquet (run `prepare` first); writes models/<name>.json,
+    /// model_comparison.csv, decoded.parquet and fit_summary.json. Exit 1 when a candidate
+    /// failed, did not converge, or has no usable covariance.
+    Fit {
+        /// The study file (study.toml).
+        study: PathBuf,
+    },
+    /// Simulate steps, turning angles and true states from a fitted model at the observed
+    /// covariates and series lengths; writes simulated_<name>.csv.
+    Simulate {
+        /// The study file (study.toml).
+        study: PathBuf,
+        /// Candidate model to simulate from (default: the one `fit` selected).
+        #[arg(long)]
+        model: Option<String>,
+        /// Seed of the simulation.
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+    },
 }
 
 /// How a command finished.
@@ -100,7 +122,80 @@ pub fn run(cli: Cli) -> Result<Outcome> {
             }
             Ok(outcome(&p.summary))
         }
+        Command::Fit { study } => fit_command(&study, cli.quiet),
+        Command::Simulate { study, model, seed } => {
+            let study = load(&study)?;
+            let out = crate::modelling::simulate(&study, model.as_deref(), seed)?;
+            if !cli.quiet {
+                println!("written: {}", out.display());
+            }
+            Ok(Outcome::Clean)
+        }
     }
+}
+
+fn fit_command(study: &Path, quiet: bool) -> Result<Outcome> {
+    let study = load(study)?;
+    let mut progress = |line: &str| {
+        if !quiet {
+            eprintln!("{line}");
+        }
+    };
+    let stage = crate::modelling::run(&study, &mut progress)?;
+    let written = crate::modelling::write(&study, &stage)?;
+    if !quiet {
+        println!("{}", render_fit(&stage));
+        println!("written:");
+        for f in &written {
+            println!("  {}", f.display());
+        }
+    }
+    Ok(if stage.all_clean() {
+        Outcome::Clean
+    } else {
+        Outcome::WithExclusions
+    })
+}
+
+/// The model comparison that `fit` prints.
+pub fn render_fit(stage: &crate::modelling::FitStage) -> String {
+    let mut o = String::new();
+    let _ = writeln!(
+        o,
+        "{:<24} {:>6} {:>6} {:>12} {:>12} {:>8} {:>10}  notes",
+        "model", "states", "params", "log L", "AIC", "ΔAIC", "best/starts"
+    );
+    for r in &stage.comparison {
+        let f = stage.fits.iter().find(|f| f.candidate.name == r.name);
+        let m = f.and_then(|f| f.result.as_ref().ok());
+        let mut notes = Vec::new();
+        if !r.converged {
+            notes.push("NOT CONVERGED".to_string());
+        }
+        if let Some(p) = m.and_then(|m| m.covariance().problem()) {
+            notes.push(format!("covariance: {p}"));
+        }
+        let _ = writeln!(
+            o,
+            "{:<24} {:>6} {:>6} {:>12.2} {:>12.2} {:>8.2} {:>10}  {}",
+            r.name,
+            r.n_states,
+            r.n_params,
+            r.loglik,
+            r.aic,
+            r.delta_aic,
+            m.map(|m| format!("{}/{}", m.convergence().n_at_best, m.convergence().n_starts))
+                .unwrap_or_default(),
+            notes.join("; ")
+        );
+    }
+    for f in &stage.fits {
+        if let Err(e) = &f.result {
+            let _ = writeln!(o, "{:<24} could not be fitted: {e}", f.candidate.name);
+        }
+    }
+    let _ = writeln!(o, "selected: {}", stage.fits[stage.selected].candidate.name);
+    o
 }
 
 fn load(path: &Path) -> Result<Study> {
@@ -108,7 +203,7 @@ fn load(path: &Path) -> Result<Study> {
 }
 
 fn outcome(s: &Summary) -> Outcome {
-    if s.excluded() > 0 {
+    if s.excluded() > 0 || !s.skipped().is_empty() {
         Outcome::WithExclusions
     } else {
         Outcome::Clean
@@ -195,6 +290,33 @@ pub fn render_check(study: &Study, s: &Summary) -> String {
         }
         if a.fixes_kept == 0 {
             let _ = writeln!(o, "{:<14} skipped: no usable fixes", "");
+        }
+    }
+    if let Some(records) = &s.smoother {
+        let _ = writeln!(o, "\nsmoothed onto a regular grid (state-space model):");
+        for r in records {
+            match &r.reason {
+                Some(why) => {
+                    let _ = writeln!(o, "  {:<14} skipped: {why}", r.animal);
+                }
+                None => {
+                    let _ = writeln!(
+                        o,
+                        "  {:<14} {} grid points ({} with large error), β = {:.3e}/s, σ = {:.3e}, log L = {:.1}{}",
+                        r.animal,
+                        r.grid_points,
+                        r.large_se_points,
+                        r.beta.unwrap_or(f64::NAN),
+                        r.sigma.unwrap_or(f64::NAN),
+                        r.log_likelihood.unwrap_or(f64::NAN),
+                        if r.converged == Some(true) {
+                            ""
+                        } else {
+                            "  NOT CONVERGED"
+                        }
+                    );
+                }
+            }
         }
     }
     if !s.excluded_by_reason.is_empty() {

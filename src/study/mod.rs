@@ -8,6 +8,7 @@
 //!
 //! Paths in the study file are relative to the folder that holds it.
 
+pub mod model;
 mod raw;
 pub(crate) mod units;
 
@@ -173,6 +174,10 @@ pub struct Study {
     default_class: LocClass,
     speed_filter: SpeedFilter,
     gap_s: f64,
+    #[serde(skip)]
+    grid: Option<crate::tracks::regular::RegularConfig>,
+    grid_settings: Option<crate::tracks::regular::RegularSettings>,
+    model: Option<model::ModelSettings>,
     write_csv: bool,
 }
 
@@ -241,6 +246,14 @@ impl Study {
     /// Longest interval (seconds) between fixes that still joins them in one segment.
     pub fn gap_s(&self) -> f64 {
         self.gap_s
+    }
+    /// Smoothing onto a regular time grid, when `[grid]` is given.
+    pub fn grid(&self) -> Option<&crate::tracks::regular::RegularConfig> {
+        self.grid.as_ref()
+    }
+    /// The models to fit, when `[model]` is given.
+    pub fn model(&self) -> Option<&model::ModelSettings> {
+        self.model.as_ref()
     }
     /// Whether tables are also written as CSV.
     pub fn write_csv(&self) -> bool {
@@ -412,6 +425,17 @@ fn resolve(raw: raw::RawStudy, source: &Path, root: &Path) -> Result<Study, Stud
         }
     };
 
+    let grid_settings = match &raw.grid {
+        Some(g) => Some(resolve_grid(g, gap_s)?),
+        None => None,
+    };
+    let grid = match &grid_settings {
+        Some(g) => Some(g.validate().map_err(|e| invalid("grid", e.to_string()))?),
+        None => None,
+    };
+
+    let model = raw.model.as_ref().map(model::resolve).transpose()?;
+
     Ok(Study {
         name,
         source: source.to_path_buf(),
@@ -424,6 +448,9 @@ fn resolve(raw: raw::RawStudy, source: &Path, root: &Path) -> Result<Study, Stud
         default_class,
         speed_filter,
         gap_s,
+        grid,
+        grid_settings,
+        model,
         write_csv: raw.output.csv,
     })
 }
@@ -513,4 +540,70 @@ fn resolve_filter(c: &raw::RawCleaning) -> Result<SpeedFilter, StudyError> {
             format!("{other:?} is not one of \"none\", \"max-speed\", \"speed-distance-angle\""),
         )),
     }
+}
+
+fn resolve_grid(
+    g: &raw::RawGrid,
+    gap_s: f64,
+) -> Result<crate::tracks::regular::RegularSettings, StudyError> {
+    use crate::tracks::regular::{AxisSd, LocationClass, OutlierSettings, RegularSettings};
+    let mut s = RegularSettings {
+        interval_s: units::parse_duration("grid.interval", &g.interval)?,
+        gap_threshold_s: gap_s,
+        estimate_error_scale: g.estimate_error_scale,
+        ..RegularSettings::default()
+    };
+    if s.interval_s >= gap_s {
+        return Err(invalid(
+            "grid.interval",
+            "must be shorter than tracks.gap, or no segment could hold two grid points",
+        ));
+    }
+    if let Some(f) = &g.flag_se {
+        s.se_flag_m = units::parse_distance("grid.flag_se", f)?;
+    }
+    match g.outlier_quantile {
+        Some(q) if q > 0.5 && q < 1.0 => {
+            s.outliers = Some(OutlierSettings {
+                quantile: q,
+                drop_and_refit: g.drop_outliers,
+            });
+        }
+        Some(q) => {
+            return Err(invalid(
+                "grid.outlier_quantile",
+                format!("{q} is not a probability in (0.5, 1), e.g. 0.999"),
+            ));
+        }
+        None if g.drop_outliers => {
+            return Err(invalid(
+                "grid.drop_outliers",
+                "needs grid.outlier_quantile, the chi-square quantile above which a fix is an outlier",
+            ));
+        }
+        None => {}
+    }
+    for (code, sd) in &g.class_errors {
+        let key = format!("grid.class_errors.{code}");
+        let class = LocClass::parse(code)
+            .and_then(LocationClass::from_fix_class)
+            .ok_or_else(|| {
+                invalid(
+                    &key,
+                    "not a usable location class (GPS, FGPS, 3, 2, 1, 0, A, B)",
+                )
+            })?;
+        let axis = match sd {
+            raw::RawAxisSd::Both(d) => {
+                let v = units::parse_distance(&key, d)?;
+                AxisSd { x_m: v, y_m: v }
+            }
+            raw::RawAxisSd::Axes([x, y]) => AxisSd {
+                x_m: units::parse_distance(&key, x)?,
+                y_m: units::parse_distance(&key, y)?,
+            },
+        };
+        s.class_errors.set(class, axis);
+    }
+    Ok(s)
 }

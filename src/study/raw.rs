@@ -16,6 +16,10 @@ pub(crate) struct RawStudy {
     #[serde(default)]
     pub(crate) tracks: RawTracks,
     #[serde(default)]
+    pub(crate) grid: Option<RawGrid>,
+    #[serde(default)]
+    pub(crate) model: Option<RawModel>,
+    #[serde(default)]
     pub(crate) output: RawOutput,
 }
 
@@ -89,9 +93,87 @@ pub(crate) struct RawTracks {
     pub(crate) gap: Option<String>,
 }
 
+/// `[grid]`: smoothing onto a regular time grid.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct RawGrid {
+    pub(crate) interval: String,
+    #[serde(default)]
+    pub(crate) flag_se: Option<String>,
+    #[serde(default)]
+    pub(crate) estimate_error_scale: bool,
+    #[serde(default)]
+    pub(crate) outlier_quantile: Option<f64>,
+    #[serde(default)]
+    pub(crate) drop_outliers: bool,
+    #[serde(default)]
+    pub(crate) class_errors: std::collections::BTreeMap<String, RawAxisSd>,
+}
+
+/// An error standard deviation: one distance for both axes, or `[x, y]`.
+#[derive(Debug, Deserialize)]
+#[serde(untagged)]
+pub(crate) enum RawAxisSd {
+    Both(String),
+    Axes([String; 2]),
+}
+
 #[derive(Debug, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub(crate) struct RawOutput {
     #[serde(default)]
     pub(crate) csv: bool,
+}
+
+/// `[model]`: the behavioural-state models to fit.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct RawModel {
+    pub(crate) states: Vec<String>,
+    #[serde(default = "default_step")]
+    pub(crate) step: String,
+    #[serde(default = "default_angle")]
+    pub(crate) angle: String,
+    #[serde(default)]
+    pub(crate) zero_mass: bool,
+    #[serde(default = "default_initial")]
+    pub(crate) initial: String,
+    #[serde(default = "default_starts")]
+    pub(crate) starts: usize,
+    #[serde(default = "default_seed")]
+    pub(crate) seed: u64,
+    #[serde(default = "default_select")]
+    pub(crate) select: String,
+    #[serde(default)]
+    pub(crate) candidate: Vec<RawCandidate>,
+}
+
+fn default_step() -> String {
+    "gamma".into()
+}
+fn default_angle() -> String {
+    "von-mises".into()
+}
+fn default_initial() -> String {
+    "stationary".into()
+}
+fn default_starts() -> usize {
+    10
+}
+fn default_seed() -> u64 {
+    1
+}
+fn default_select() -> String {
+    "aic".into()
+}
+
+/// `[[model.candidate]]`: one model in the comparison.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct RawCandidate {
+    pub(crate) name: String,
+    #[serde(default)]
+    pub(crate) states: Option<usize>,
+    #[serde(default)]
+    pub(crate) covariates: Vec<String>,
 }

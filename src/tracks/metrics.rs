@@ -53,8 +53,11 @@ pub struct Steps {
     pub turn_rad: Vec<f64>,
     /// Duration of the step, seconds.
     pub dt_s: Vec<f64>,
-    /// Location class of the start fix.
-    pub class: Vec<LocClass>,
+    /// Location class of the start fix (`None` for a smoothed location).
+    pub class: Vec<Option<LocClass>>,
+    /// Location error (1-σ ellipse semi-major axis, m) of a smoothed start location; NaN
+    /// for an observed fix.
+    pub se_m: Vec<f64>,
 }
 
 impl Steps {
@@ -103,17 +106,73 @@ pub fn turning_angle(arrive_deg: f64, depart_deg: f64) -> f64 {
     wrap_deg(arrive_deg - depart_deg).to_radians()
 }
 
-/// Computes the step table for cleaned tracks (parallel over tracks; the result does not
-/// depend on the thread count).
+/// A located instant on a path: a cleaned fix or a smoothed grid point.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PathPoint {
+    /// UTC microseconds.
+    pub time_us: i64,
+    /// Longitude, degrees.
+    pub lon: f64,
+    /// Latitude, degrees.
+    pub lat: f64,
+    /// Location class of an observed fix; `None` for a smoothed location.
+    pub class: Option<LocClass>,
+    /// Semi-major axis of the 1-σ location error ellipse of a smoothed location, metres
+    /// (NaN for an observed fix).
+    pub se_m: f64,
+}
+
+/// One animal's path, already split into segments.
+#[derive(Debug, Clone)]
+pub struct Path {
+    /// Animal id.
+    pub animal: String,
+    /// Segments in time order; each in time order.
+    pub segments: Vec<Vec<PathPoint>>,
+}
+
+impl Path {
+    /// The path of a cleaned track, split at gaps longer than `gap_s`.
+    pub fn from_track(track: &Track, gap_s: f64) -> Path {
+        let segments = segments(track, gap_s)
+            .into_iter()
+            .map(|(a, b)| {
+                track.fixes[a..b]
+                    .iter()
+                    .map(|f| PathPoint {
+                        time_us: f.time_us,
+                        lon: f.lon,
+                        lat: f.lat,
+                        class: Some(f.class),
+                        se_m: f64::NAN,
+                    })
+                    .collect()
+            })
+            .collect();
+        Path {
+            animal: track.animal.clone(),
+            segments,
+        }
+    }
+}
+
+/// Computes the step table for cleaned tracks, split at gaps longer than `gap_s`.
 pub fn steps(tracks: &[Track], gap_s: f64) -> Steps {
-    let parts: Vec<Steps> = tracks
+    let paths: Vec<Path> = tracks.iter().map(|t| Path::from_track(t, gap_s)).collect();
+    steps_of_paths(&paths)
+}
+
+/// Computes the step table of paths (parallel over paths; the result does not depend on
+/// the thread count).
+pub fn steps_of_paths(paths: &[Path]) -> Steps {
+    let parts: Vec<Steps> = paths
         .par_iter()
         .enumerate()
-        .map(|(i, t)| track_steps(i as u32, t, gap_s))
+        .map(|(i, p)| path_steps(i as u32, p))
         .collect();
     let total: usize = parts.iter().map(Steps::len).sum();
     let mut out = Steps {
-        animals: tracks.iter().map(|t| t.animal.clone()).collect(),
+        animals: paths.iter().map(|p| p.animal.clone()).collect(),
         ..Steps::default()
     };
     macro_rules! reserve_extend {
@@ -134,7 +193,8 @@ pub fn steps(tracks: &[Track], gap_s: f64) -> Steps {
         bearing_deg,
         turn_rad,
         dt_s,
-        class
+        class,
+        se_m
     );
     out
 }
@@ -155,13 +215,12 @@ pub fn segments(track: &Track, gap_s: f64) -> Vec<(usize, usize)> {
     out
 }
 
-fn track_steps(animal: u32, track: &Track, gap_s: f64) -> Steps {
+fn path_steps(animal: u32, path: &Path) -> Steps {
     let mut s = Steps::default();
-    let f = &track.fixes;
-    for (seg_no, (a, b)) in segments(track, gap_s).into_iter().enumerate() {
+    for (seg_no, seg) in path.segments.iter().enumerate() {
         let mut prev_arrive: Option<f64> = None;
-        for k in a..b.saturating_sub(1) {
-            let (p, q) = (&f[k], &f[k + 1]);
+        for w in seg.windows(2) {
+            let (p, q) = (&w[0], &w[1]);
             let (len, azi1, azi2) = inverse(p.lon, p.lat, q.lon, q.lat);
             let moved = len > 0.0;
             let turn = match (prev_arrive, moved) {
@@ -182,6 +241,7 @@ fn track_steps(animal: u32, track: &Track, gap_s: f64) -> Steps {
             s.turn_rad.push(turn);
             s.dt_s.push((q.time_us - p.time_us) as f64 * 1e-6);
             s.class.push(p.class);
+            s.se_m.push(p.se_m);
             prev_arrive = moved.then_some(azi2);
         }
     }

@@ -270,4 +270,19 @@ impl ClassErrors {
             LocationClass::ArgosB => self.argos_b,
         }
     }
+
+    /// Replaces the standard deviations of one class.
+    pub fn set(&mut self, class: LocationClass, sd: AxisSd) {
+        let slot = match class {
+            LocationClass::Gps => &mut self.gps,
+            LocationClass::FastlocGps => &mut self.fastloc_gps,
+            LocationClass::Argos3 => &mut self.argos3,
+            LocationClass::Argos2 => &mut self.argos2,
+            LocationClass::Argos1 => &mut self.argos1,
+            LocationClass::Argos0 => &mut self.argos0,
+            LocationClass::ArgosA => &mut self.argos_a,
+            LocationClass::ArgosB => &mut self.argos_b,
+        };
+        *slot = sd;
+    }
 }

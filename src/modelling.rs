@@ -1,0 +1,705 @@
+//! The fit stage: the prepared step table → candidate models → comparison → decoding.
+//!
+//! [`run`] reads `steps.parquet` from the study's output folder, cuts it into series
+//! (one per animal and segment: independent series sharing parameters), builds each
+//! candidate's transition design from the table's columns, fits every candidate with the
+//! study's random starts, compares them (AIC, BIC), picks one by the study's rule and
+//! decodes it (Viterbi path and local state probabilities). [`write`] saves each model as
+//! JSON, the comparison table and the decoded step table, each atomically.
+//!
+//! Streams: the step length (`step_m`, the study's step family, with a per-state zero mass
+//! when `model.zero_mass = true`) and, unless `model.angle = "none"`, the turning angle
+//! (`turn_rad`; missing at the first step of each segment, which the likelihood integrates
+//! out). The covariate value recorded at step t governs the transition from the state at t
+//! to the state at t + 1.
+
+use std::collections::BTreeMap;
+use std::fs::File;
+use std::path::{Path, PathBuf};
+
+use polars::prelude::*;
+
+use crate::hmm::design::{Design, RawColumn};
+use crate::hmm::error::HmmError;
+use crate::hmm::inference::{ComparisonRow, compare};
+use crate::hmm::{
+    Data, Family, FitOptions, FittedModel, InitialDistribution, ModelSpec, Series, StreamSpec, fit,
+};
+use crate::io::{self, WriteError};
+use crate::study::Study;
+use crate::study::model::{AngleFamily, Candidate, ModelSettings, Selection, StepFamily, Term};
+
+/// Problems of the fit stage.
+#[derive(Debug, thiserror::Error)]
+pub enum FitStageError {
+    #[error("study {path} has no [model] section: add one (see `cairn init` for a template)")]
+    NoModel { path: PathBuf },
+    #[error("{path} does not exist: run `cairn prepare` first")]
+    MissingSteps { path: PathBuf },
+    #[error("cannot read {path}: {reason}")]
+    Read { path: PathBuf, reason: String },
+    #[error("{path}, column `{column}`: {reason}")]
+    Column {
+        path: PathBuf,
+        column: String,
+        reason: String,
+    },
+    #[error("model `{candidate}`: {source}")]
+    Model { candidate: String, source: HmmError },
+    #[error("every candidate model failed:\n{0}")]
+    AllFailed(String),
+    #[error("the selected model `{0}` could not be fitted (see above)")]
+    SelectedFailed(String),
+    #[error(transparent)]
+    Write(#[from] WriteError),
+}
+
+/// One candidate and its outcome.
+#[derive(Debug)]
+pub struct CandidateFit {
+    /// The candidate as the study declares it.
+    pub candidate: Candidate,
+    /// The design's column names (after expanding cyclic and factor terms).
+    pub covariates: Vec<String>,
+    /// The fitted model, or why it could not be fitted.
+    pub result: Result<FittedModel, String>,
+}
+
+/// Decoded states of the selected model, row-aligned with the step table.
+#[derive(Debug, Clone)]
+pub struct Decoded {
+    /// Viterbi state per step (0-based, model state order).
+    pub state: Vec<usize>,
+    /// Local state probabilities per step, row-major (steps × states).
+    pub probs: Vec<f64>,
+    /// State labels.
+    pub labels: Vec<String>,
+}
+
+/// Everything the fit stage produced.
+#[derive(Debug)]
+pub struct FitStage {
+    /// Every candidate, in study order.
+    pub fits: Vec<CandidateFit>,
+    /// Comparison of the candidates that were fitted (sorted by AIC).
+    pub comparison: Vec<ComparisonRow>,
+    /// Index into `fits` of the selected model.
+    pub selected: usize,
+    /// Decoded states of the selected model.
+    pub decoded: Decoded,
+    /// The step table the models were fitted to.
+    pub steps: DataFrame,
+}
+
+impl FitStage {
+    /// Whether every fitted candidate converged and has a usable covariance.
+    pub fn all_clean(&self) -> bool {
+        self.fits.iter().all(|f| match &f.result {
+            Ok(m) => m.convergence().converged && m.covariance().problem().is_none(),
+            Err(_) => false,
+        })
+    }
+}
+
+fn read_err(path: &Path, e: impl std::fmt::Display) -> FitStageError {
+    FitStageError::Read {
+        path: path.to_path_buf(),
+        reason: e.to_string(),
+    }
+}
+
+/// Reads the prepared step table.
+///
+/// # Errors
+/// [`FitStageError`] when the file is missing or unreadable.
+pub fn read_steps(study: &Study) -> Result<(PathBuf, DataFrame), FitStageError> {
+    let path = study.output().join("steps.parquet");
+    if !path.is_file() {
+        return Err(FitStageError::MissingSteps { path });
+    }
+    let f = File::open(&path).map_err(|e| read_err(&path, e))?;
+    let df = ParquetReader::new(f)
+        .finish()
+        .map_err(|e| read_err(&path, e))?;
+    Ok((path, df))
+}
+
+fn f64_column(path: &Path, df: &DataFrame, name: &str) -> Result<Vec<f64>, FitStageError> {
+    let col = df.column(name).map_err(|_| FitStageError::Column {
+        path: path.to_path_buf(),
+        column: name.to_string(),
+        reason: format!(
+            "no such column; the table has: {}",
+            df.get_column_names()
+                .iter()
+                .map(|c| c.as_str())
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+    })?;
+    let s = col
+        .as_materialized_series()
+        .cast(&DataType::Float64)
+        .map_err(|e| FitStageError::Column {
+            path: path.to_path_buf(),
+            column: name.to_string(),
+            reason: format!("not numeric: {e}"),
+        })?;
+    let ca = s.f64().map_err(|e| read_err(path, e))?;
+    Ok(ca.iter().map(|v| v.unwrap_or(f64::NAN)).collect())
+}
+
+fn text_column(path: &Path, df: &DataFrame, name: &str) -> Result<Vec<String>, FitStageError> {
+    let s = df
+        .column(name)
+        .map_err(|e| read_err(path, e))?
+        .as_materialized_series()
+        .cast(&DataType::String)
+        .map_err(|e| read_err(path, e))?;
+    let ca = s.str().map_err(|e| read_err(path, e))?;
+    Ok(ca.iter().map(|v| v.unwrap_or("").to_string()).collect())
+}
+
+/// Series boundaries: runs of equal (animal, segment), `(id, start, end)`.
+fn series_bounds(animal: &[String], segment: &[f64]) -> Vec<(String, usize, usize)> {
+    let mut out = Vec::new();
+    let mut start = 0;
+    for k in 1..=animal.len() {
+        if k == animal.len() || animal[k] != animal[start] || segment[k] != segment[start] {
+            out.push((format!("{}#{}", animal[start], segment[start]), start, k));
+            start = k;
+        }
+    }
+    out
+}
+
+fn design_of(terms: &[Term]) -> Design {
+    terms.iter().fold(Design::new(), |d, t| match t {
+        Term::Numeric { column } => d.numeric(column),
+        Term::Cyclic { column, period } => d.cyclic(column, *period),
+        Term::Factor { column, reference } => d.categorical(column, reference),
+        Term::Interaction { a, b } => d.interaction(a, b),
+    })
+}
+
+/// Raw columns the terms read, from the step table.
+fn raw_columns(
+    path: &Path,
+    df: &DataFrame,
+    terms: &[Term],
+) -> Result<BTreeMap<String, RawColumn>, FitStageError> {
+    let mut cols = BTreeMap::new();
+    for t in terms {
+        for c in t.columns() {
+            if cols.contains_key(c) {
+                continue;
+            }
+            let raw = match t {
+                Term::Factor { .. } => RawColumn::Categorical(text_column(path, df, c)?),
+                _ => RawColumn::Numeric(f64_column(path, df, c)?),
+            };
+            cols.insert(c.to_string(), raw);
+        }
+    }
+    Ok(cols)
+}
+
+fn spec_of(settings: &ModelSettings, c: &Candidate, covariates: &[String]) -> ModelSpec {
+    let family = match settings.step {
+        StepFamily::Gamma => Family::Gamma,
+        StepFamily::Weibull => Family::Weibull,
+        StepFamily::LogNormal => Family::LogNormal,
+    };
+    let mut step = StreamSpec::new("step", family);
+    if settings.zero_mass {
+        step = step.with_zero_mass();
+    }
+    let mut streams = vec![step];
+    if let Some(a) = settings.angle {
+        streams.push(StreamSpec::new(
+            "angle",
+            match a {
+                AngleFamily::VonMises => Family::VonMises,
+                AngleFamily::WrappedCauchy => Family::WrappedCauchy,
+            },
+        ));
+    }
+    let names: Vec<&str> = covariates.iter().map(String::as_str).collect();
+    let labels: Vec<&str> = c.labels.iter().map(String::as_str).collect();
+    ModelSpec::new(c.n_states, streams)
+        .with_covariates(&names)
+        .with_initial(if settings.stationary_start {
+            InitialDistribution::Stationary
+        } else {
+            InitialDistribution::Estimated
+        })
+        .with_labels(&labels)
+}
+
+/// The data of one candidate: series with the streams and the candidate's design.
+fn data_of(
+    settings: &ModelSettings,
+    bounds: &[(String, usize, usize)],
+    step: &[f64],
+    angle: &[f64],
+    covariates: &[String],
+    values: &[f64],
+) -> Result<Data, HmmError> {
+    let p = covariates.len();
+    let series = bounds
+        .iter()
+        .map(|(id, a, b)| {
+            let mut streams = vec![step[*a..*b].to_vec()];
+            if settings.angle.is_some() {
+                streams.push(angle[*a..*b].to_vec());
+            }
+            Series::new(id.clone(), streams, values[a * p..b * p].to_vec())
+        })
+        .collect();
+    let mut names = vec!["step".to_string()];
+    if settings.angle.is_some() {
+        names.push("angle".to_string());
+    }
+    Data::new(names, covariates.to_vec(), series)
+}
+
+/// Fits every candidate of the study and decodes the selected one.
+///
+/// `progress` is called with a line of text before each candidate.
+///
+/// # Errors
+/// [`FitStageError`] when the study has no `[model]`, the step table is missing or a term
+/// names a column it does not have, or no candidate (or not the selected one) could be
+/// fitted.
+pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, FitStageError> {
+    let settings = study.model().ok_or_else(|| FitStageError::NoModel {
+        path: study.source().to_path_buf(),
+    })?;
+    let (path, df) = read_steps(study)?;
+    let animal = text_column(&path, &df, "animal")?;
+    let segment = f64_column(&path, &df, "segment")?;
+    let step = f64_column(&path, &df, "step_m")?;
+    let angle = f64_column(&path, &df, "turn_rad")?;
+    let bounds = series_bounds(&animal, &segment);
+
+    let mut fits = Vec::with_capacity(settings.candidates.len());
+    for c in &settings.candidates {
+        progress(&format!(
+            "fitting `{}`: {} states, {} covariate term(s), {} starts",
+            c.name,
+            c.n_states,
+            c.terms.len(),
+            settings.starts
+        ));
+        let raw = raw_columns(&path, &df, &c.terms)?;
+        let (covariates, values) = if c.terms.is_empty() {
+            (Vec::new(), Vec::new())
+        } else {
+            let m = design_of(&c.terms)
+                .build(&raw)
+                .map_err(|source| FitStageError::Model {
+                    candidate: c.name.clone(),
+                    source,
+                })?;
+            (m.names().to_vec(), m.values().to_vec())
+        };
+        let spec = spec_of(settings, c, &covariates);
+        let result = data_of(settings, &bounds, &step, &angle, &covariates, &values)
+            .and_then(|data| {
+                fit(
+                    &spec,
+                    &data,
+                    &FitOptions {
+                        n_starts: settings.starts,
+                        seed: settings.seed,
+                        ..FitOptions::default()
+                    },
+                )
+            })
+            .map_err(|e| e.to_string());
+        if let Err(e) = &result {
+            progress(&format!("  `{}` could not be fitted: {e}", c.name));
+        }
+        fits.push(CandidateFit {
+            candidate: c.clone(),
+            covariates,
+            result,
+        });
+    }
+
+    let ok: Vec<(&str, &FittedModel)> = fits
+        .iter()
+        .filter_map(|f| {
+            f.result
+                .as_ref()
+                .ok()
+                .map(|m| (f.candidate.name.as_str(), m))
+        })
+        .collect();
+    if ok.is_empty() {
+        let why: Vec<String> = fits
+            .iter()
+            .map(|f| {
+                format!(
+                    "  {}: {}",
+                    f.candidate.name,
+                    f.result.as_ref().err().map_or("", |s| s)
+                )
+            })
+            .collect();
+        return Err(FitStageError::AllFailed(why.join("\n")));
+    }
+    let comparison = compare(&ok);
+    let selected = match &settings.select {
+        Selection::Aic | Selection::Bic => {
+            let key = |m: &FittedModel| match settings.select {
+                Selection::Bic => m.bic(),
+                _ => m.aic(),
+            };
+            fits.iter()
+                .enumerate()
+                .filter_map(|(i, f)| f.result.as_ref().ok().map(|m| (i, key(m))))
+                .min_by(|a, b| a.1.total_cmp(&b.1))
+                .map(|(i, _)| i)
+                .unwrap_or(0)
+        }
+        Selection::Named(name) => {
+            let i = fits
+                .iter()
+                .position(|f| &f.candidate.name == name)
+                .unwrap_or(0);
+            if fits[i].result.is_err() {
+                return Err(FitStageError::SelectedFailed(name.clone()));
+            }
+            i
+        }
+    };
+    let chosen = &fits[selected];
+    let model = chosen
+        .result
+        .as_ref()
+        .map_err(|_| FitStageError::SelectedFailed(chosen.candidate.name.clone()))?;
+    let raw = raw_columns(&path, &df, &chosen.candidate.terms)?;
+    let values = if chosen.candidate.terms.is_empty() {
+        Vec::new()
+    } else {
+        design_of(&chosen.candidate.terms)
+            .build(&raw)
+            .map_err(|source| FitStageError::Model {
+                candidate: chosen.candidate.name.clone(),
+                source,
+            })?
+            .values()
+            .to_vec()
+    };
+    let data = data_of(
+        settings,
+        &bounds,
+        &step,
+        &angle,
+        &chosen.covariates,
+        &values,
+    )
+    .map_err(|source| FitStageError::Model {
+        candidate: chosen.candidate.name.clone(),
+        source,
+    })?;
+    let m = model.model();
+    let model_err = |source| FitStageError::Model {
+        candidate: chosen.candidate.name.clone(),
+        source,
+    };
+    let paths = m.viterbi(&data).map_err(model_err)?;
+    let probs = m.state_probabilities(&data).map_err(model_err)?;
+    let decoded = Decoded {
+        state: paths
+            .iter()
+            .flat_map(|p| p.states.iter().copied())
+            .collect(),
+        probs: probs.iter().flat_map(|p| p.probs.iter().copied()).collect(),
+        labels: chosen.candidate.labels.clone(),
+    };
+    Ok(FitStage {
+        fits,
+        comparison,
+        selected,
+        decoded,
+        steps: df,
+    })
+}
+
+/// Writes `models/<candidate>.json`, `model_comparison.csv`, `decoded.parquet` and
+/// `fit_summary.json` into the study's output folder.
+///
+/// # Errors
+/// [`FitStageError::Write`] naming the file that could not be written.
+pub fn write(study: &Study, stage: &FitStage) -> Result<Vec<PathBuf>, FitStageError> {
+    let out = study.output();
+    let mut written = Vec::new();
+    for f in &stage.fits {
+        if let Ok(m) = &f.result {
+            let path = out
+                .join("models")
+                .join(format!("{}.json", f.candidate.slug()));
+            let json = m.to_json().map_err(|e| WriteError {
+                path: path.clone(),
+                reason: e.to_string(),
+            })?;
+            io::write_atomic(&path, |w| {
+                use std::io::Write;
+                w.write_all(json.as_bytes()).map_err(|e| e.to_string())
+            })?;
+            written.push(path);
+        }
+    }
+    // Comparison table.
+    let by_name: BTreeMap<&str, &CandidateFit> = stage
+        .fits
+        .iter()
+        .map(|f| (f.candidate.name.as_str(), f))
+        .collect();
+    let rows = &stage.comparison;
+    let get = |r: &ComparisonRow| {
+        by_name
+            .get(r.name.as_str())
+            .and_then(|f| f.result.as_ref().ok())
+    };
+    let frame = DataFrame::new_infer_height(vec![
+        Column::new(
+            "model".into(),
+            rows.iter().map(|r| r.name.clone()).collect::<Vec<_>>(),
+        ),
+        Column::new(
+            "states".into(),
+            rows.iter().map(|r| r.n_states as u32).collect::<Vec<_>>(),
+        ),
+        Column::new(
+            "covariates".into(),
+            rows.iter()
+                .map(|r| {
+                    by_name
+                        .get(r.name.as_str())
+                        .map(|f| f.covariates.join(" + "))
+                        .unwrap_or_default()
+                })
+                .collect::<Vec<_>>(),
+        ),
+        Column::new(
+            "parameters".into(),
+            rows.iter().map(|r| r.n_params as u32).collect::<Vec<_>>(),
+        ),
+        Column::new(
+            "log_likelihood".into(),
+            rows.iter().map(|r| r.loglik).collect::<Vec<_>>(),
+        ),
+        Column::new("aic".into(), rows.iter().map(|r| r.aic).collect::<Vec<_>>()),
+        Column::new(
+            "delta_aic".into(),
+            rows.iter().map(|r| r.delta_aic).collect::<Vec<_>>(),
+        ),
+        Column::new("bic".into(), rows.iter().map(|r| r.bic).collect::<Vec<_>>()),
+        Column::new(
+            "delta_bic".into(),
+            rows.iter().map(|r| r.delta_bic).collect::<Vec<_>>(),
+        ),
+        Column::new(
+            "starts_at_best".into(),
+            rows.iter()
+                .map(|r| get(r).map_or(0, |m| m.convergence().n_at_best as u32))
+                .collect::<Vec<_>>(),
+        ),
+        Column::new(
+            "converged".into(),
+            rows.iter().map(|r| r.converged).collect::<Vec<_>>(),
+        ),
+        Column::new(
+            "covariance".into(),
+            rows.iter()
+                .map(|r| {
+                    get(r)
+                        .map(|m| m.covariance().problem().unwrap_or_else(|| "ok".to_string()))
+                        .unwrap_or_default()
+                })
+                .collect::<Vec<_>>(),
+        ),
+    ]);
+    let mut frame = frame.map_err(|e| WriteError {
+        path: out.join("model_comparison.csv"),
+        reason: e.to_string(),
+    })?;
+    let p = out.join("model_comparison.csv");
+    io::write_csv(&p, &mut frame)?;
+    written.push(p);
+
+    // Decoded step table: the step table plus state, label and probabilities.
+    let d = &stage.decoded;
+    let n = d.labels.len();
+    let mut df = stage.steps.clone();
+    let frame_err = |e: PolarsError| WriteError {
+        path: out.join("decoded.parquet"),
+        reason: e.to_string(),
+    };
+    df.with_column(Column::new(
+        "state".into(),
+        d.state
+            .iter()
+            .map(|&s| d.labels[s].clone())
+            .collect::<Vec<_>>(),
+    ))
+    .map_err(frame_err)?;
+    df.with_column(Column::new(
+        "state_index".into(),
+        d.state.iter().map(|&s| s as u32 + 1).collect::<Vec<_>>(),
+    ))
+    .map_err(frame_err)?;
+    for (j, label) in d.labels.iter().enumerate() {
+        let name = format!("p_{}", label.replace(' ', "_"));
+        let col: Vec<f64> = (0..d.state.len()).map(|t| d.probs[t * n + j]).collect();
+        df.with_column(Column::new(name.into(), col))
+            .map_err(frame_err)?;
+    }
+    let p = out.join("decoded.parquet");
+    io::write_parquet(&p, &mut df)?;
+    written.push(p);
+    if study.write_csv() {
+        let p = out.join("decoded.csv");
+        io::write_csv(&p, &mut df)?;
+        written.push(p);
+    }
+
+    // Which model was selected and how.
+    let sel = &stage.fits[stage.selected];
+    let summary = serde_json::json!({
+        "study": study.name(),
+        "cairn_version": env!("CARGO_PKG_VERSION"),
+        "selection": study.model().map(|m| &m.select),
+        "selected": sel.candidate.name,
+        "selected_file": format!("models/{}.json", sel.candidate.slug()),
+        "candidates": stage.fits.iter().map(|f| serde_json::json!({
+            "name": f.candidate.name,
+            "states": f.candidate.n_states,
+            "labels": f.candidate.labels,
+            "terms": f.candidate.terms,
+            "covariates": f.covariates,
+            "fitted": f.result.is_ok(),
+            "error": f.result.as_ref().err(),
+            "converged": f.result.as_ref().ok().map(|m| m.convergence().converged),
+        })).collect::<Vec<_>>(),
+    });
+    let p = out.join("fit_summary.json");
+    let text = serde_json::to_string_pretty(&summary).map_err(|e| WriteError {
+        path: p.clone(),
+        reason: e.to_string(),
+    })?;
+    io::write_atomic(&p, |w| {
+        use std::io::Write;
+        w.write_all(text.as_bytes()).map_err(|e| e.to_string())
+    })?;
+    written.push(p);
+    Ok(written)
+}
+
+/// Simulates from a fitted candidate at the observed covariates and series lengths of the
+/// prepared step table, and writes `simulated_<candidate>.csv` (series, step index, true
+/// state, step length, turning angle). Used for checks of the fitted model against the
+/// data and for synthetic studies.
+///
+/// # Errors
+/// [`FitStageError`] when the study has no such candidate or it has not been fitted.
+pub fn simulate(
+    study: &Study,
+    candidate: Option<&str>,
+    seed: u64,
+) -> Result<PathBuf, FitStageError> {
+    use crate::hmm::simulate::SeriesDesign;
+    let settings = study.model().ok_or_else(|| FitStageError::NoModel {
+        path: study.source().to_path_buf(),
+    })?;
+    let c = match candidate {
+        Some(name) => settings
+            .candidates
+            .iter()
+            .find(|c| c.name == name)
+            .ok_or_else(|| FitStageError::SelectedFailed(name.to_string()))?,
+        None => {
+            // The model `fit` selected, from fit_summary.json.
+            let p = study.output().join("fit_summary.json");
+            let text = std::fs::read_to_string(&p)
+                .map_err(|_| FitStageError::MissingSteps { path: p.clone() })?;
+            let v: serde_json::Value = serde_json::from_str(&text).map_err(|e| read_err(&p, e))?;
+            let name = v["selected"].as_str().unwrap_or_default().to_string();
+            settings
+                .candidates
+                .iter()
+                .find(|c| c.name == name)
+                .ok_or(FitStageError::SelectedFailed(name))?
+        }
+    };
+    let model_path = study
+        .output()
+        .join("models")
+        .join(format!("{}.json", c.slug()));
+    if !model_path.is_file() {
+        return Err(FitStageError::MissingSteps { path: model_path });
+    }
+    let fitted = FittedModel::load(&model_path).map_err(|source| FitStageError::Model {
+        candidate: c.name.clone(),
+        source,
+    })?;
+    let (path, df) = read_steps(study)?;
+    let animal = text_column(&path, &df, "animal")?;
+    let segment = f64_column(&path, &df, "segment")?;
+    let bounds = series_bounds(&animal, &segment);
+    let raw = raw_columns(&path, &df, &c.terms)?;
+    let (p, values) = if c.terms.is_empty() {
+        (0, Vec::new())
+    } else {
+        let m = design_of(&c.terms)
+            .build(&raw)
+            .map_err(|source| FitStageError::Model {
+                candidate: c.name.clone(),
+                source,
+            })?;
+        (m.n_cols(), m.values().to_vec())
+    };
+    let designs: Vec<SeriesDesign> = bounds
+        .iter()
+        .map(|(id, a, b)| SeriesDesign {
+            id: id.clone(),
+            len: b - a,
+            covariates: values[a * p..b * p].to_vec(),
+        })
+        .collect();
+    let sim = fitted
+        .model()
+        .simulate(&designs, seed)
+        .map_err(|source| FitStageError::Model {
+            candidate: c.name.clone(),
+            source,
+        })?;
+    let mut series = Vec::new();
+    let mut t = Vec::new();
+    let mut state = Vec::new();
+    let mut step = Vec::new();
+    let mut angle = Vec::new();
+    for (s, states) in sim.data.series().iter().zip(&sim.states) {
+        for (k, &st) in states.iter().enumerate() {
+            series.push(s.id().to_string());
+            t.push(k as u32 + 1);
+            state.push(c.labels[st].clone());
+            step.push(s.streams()[0][k]);
+            angle.push(s.streams().get(1).map_or(f64::NAN, |a| a[k]));
+        }
+    }
+    let out = study.output().join(format!("simulated_{}.csv", c.slug()));
+    let mut frame = DataFrame::new_infer_height(vec![
+        Column::new("series".into(), series),
+        Column::new("t".into(), t),
+        Column::new("state".into(), state),
+        Column::new("step_m".into(), step),
+        Column::new("turn_rad".into(), angle),
+    ])
+    .map_err(|e| read_err(&out, e))?;
+    io::write_csv(&out, &mut frame)?;
+    Ok(out)
+}
