@@ -134,3 +134,51 @@ fn unusable_input_exits_2_naming_file_and_column() {
         "{err}"
     );
 }
+
+#[test]
+fn prepare_fit_simulate_end_to_end() {
+    use polars::prelude::*;
+    let d = tempfile::tempdir().unwrap();
+    let study = copy_example(d.path());
+    // fit before prepare: a clear error.
+    let (code, _, err) = cairn(&["fit", &study]);
+    assert_eq!(code, 2);
+    assert!(
+        err.contains("steps.parquet") && err.contains("run `cairn prepare` first"),
+        "{err}"
+    );
+    let (code, out, err) = cairn(&["prepare", &study]);
+    assert_eq!(code, 1, "{out}{err}");
+    assert!(out.contains("smoothed onto a regular grid"), "{out}");
+    let (code, out, err) = cairn(&["fit", &study]);
+    assert!(code == 0 || code == 1, "{out}{err}");
+    assert!(out.contains("selected: no covariates"), "{out}");
+    let o = d.path().join("cairn-out");
+    let cmp = std::fs::read_to_string(o.join("model_comparison.csv")).unwrap();
+    assert_eq!(cmp.lines().count(), 3, "{cmp}");
+    assert!(
+        cmp.lines().nth(1).unwrap().starts_with("no covariates,2,"),
+        "{cmp}"
+    );
+    let steps = ParquetReader::new(std::fs::File::open(o.join("steps.parquet")).unwrap())
+        .finish()
+        .unwrap();
+    let decoded = ParquetReader::new(std::fs::File::open(o.join("decoded.parquet")).unwrap())
+        .finish()
+        .unwrap();
+    assert_eq!(steps.height(), decoded.height());
+    for c in ["state", "state_index", "p_slow", "p_fast"] {
+        assert!(decoded.column(c).is_ok(), "{c} missing");
+    }
+    // Probabilities of each step sum to one.
+    let a = decoded.column("p_slow").unwrap().f64().unwrap().clone();
+    let b = decoded.column("p_fast").unwrap().f64().unwrap().clone();
+    for (x, y) in a.iter().zip(b.iter()) {
+        assert!((x.unwrap() + y.unwrap() - 1.0).abs() < 1e-9);
+    }
+    assert!(o.join("models/no-covariates.json").is_file());
+    let (code, out, err) = cairn(&["simulate", &study, "--seed", "3"]);
+    assert_eq!(code, 0, "{out}{err}");
+    let sim = std::fs::read_to_string(o.join("simulated_no-covariates.csv")).unwrap();
+    assert_eq!(sim.lines().count() - 1, steps.height());
+}
