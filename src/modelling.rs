@@ -204,6 +204,25 @@ fn raw_columns(
     Ok(cols)
 }
 
+/// The candidate's design: column names and row-major values (empty without terms).
+fn design_values(
+    path: &Path,
+    df: &DataFrame,
+    c: &Candidate,
+) -> Result<(Vec<String>, Vec<f64>), FitStageError> {
+    if c.terms.is_empty() {
+        return Ok((Vec::new(), Vec::new()));
+    }
+    let raw = raw_columns(path, df, &c.terms)?;
+    let m = design_of(&c.terms)
+        .build(&raw)
+        .map_err(|source| FitStageError::Model {
+            candidate: c.name.clone(),
+            source,
+        })?;
+    Ok((m.names().to_vec(), m.values().to_vec()))
+}
+
 fn spec_of(settings: &ModelSettings, c: &Candidate, covariates: &[String]) -> ModelSpec {
     let family = match settings.step {
         StepFamily::Gamma => Family::Gamma,
@@ -291,18 +310,7 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
             c.terms.len(),
             settings.starts
         ));
-        let raw = raw_columns(&path, &df, &c.terms)?;
-        let (covariates, values) = if c.terms.is_empty() {
-            (Vec::new(), Vec::new())
-        } else {
-            let m = design_of(&c.terms)
-                .build(&raw)
-                .map_err(|source| FitStageError::Model {
-                    candidate: c.name.clone(),
-                    source,
-                })?;
-            (m.names().to_vec(), m.values().to_vec())
-        };
+        let (covariates, values) = design_values(&path, &df, c)?;
         let spec = spec_of(settings, c, &covariates);
         let result = data_of(settings, &bounds, &step, &angle, &covariates, &values)
             .and_then(|data| {
@@ -379,19 +387,7 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
         .result
         .as_ref()
         .map_err(|_| FitStageError::SelectedFailed(chosen.candidate.name.clone()))?;
-    let raw = raw_columns(&path, &df, &chosen.candidate.terms)?;
-    let values = if chosen.candidate.terms.is_empty() {
-        Vec::new()
-    } else {
-        design_of(&chosen.candidate.terms)
-            .build(&raw)
-            .map_err(|source| FitStageError::Model {
-                candidate: chosen.candidate.name.clone(),
-                source,
-            })?
-            .values()
-            .to_vec()
-    };
+    let (_, values) = design_values(&path, &df, &chosen.candidate)?;
     let data = data_of(
         settings,
         &bounds,
@@ -650,18 +646,8 @@ pub fn simulate(
     let animal = text_column(&path, &df, "animal")?;
     let segment = f64_column(&path, &df, "segment")?;
     let bounds = series_bounds(&animal, &segment);
-    let raw = raw_columns(&path, &df, &c.terms)?;
-    let (p, values) = if c.terms.is_empty() {
-        (0, Vec::new())
-    } else {
-        let m = design_of(&c.terms)
-            .build(&raw)
-            .map_err(|source| FitStageError::Model {
-                candidate: c.name.clone(),
-                source,
-            })?;
-        (m.n_cols(), m.values().to_vec())
-    };
+    let (names, values) = design_values(&path, &df, c)?;
+    let p = names.len();
     let designs: Vec<SeriesDesign> = bounds
         .iter()
         .map(|(id, a, b)| SeriesDesign {
