@@ -173,7 +173,7 @@ fn series_bounds(animal: &[String], segment: &[f64]) -> Vec<(String, usize, usiz
     out
 }
 
-fn design_of(terms: &[Term]) -> Design {
+pub(crate) fn design_of(terms: &[Term]) -> Design {
     terms.iter().fold(Design::new(), |d, t| match t {
         Term::Numeric { column } => d.numeric(column),
         Term::Cyclic { column, period } => d.cyclic(column, *period),

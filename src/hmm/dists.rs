@@ -250,26 +250,55 @@ impl StateDist {
     /// missing values and zero masses.
     #[inline]
     pub(crate) fn log_density(&self, u: f64, v: f64) -> f64 {
+        log_density_of(self.family, &self.c, u, v)
+    }
+
+    pub(crate) fn family(&self) -> Family {
+        self.family
+    }
+
+    /// The constants (see `new`); with [`log_density_of`] a loop that has already
+    /// matched on the family evaluates densities without a per-observation match.
+    pub(crate) fn consts(&self) -> &[f64; 6] {
+        &self.c
+    }
+
+    /// Whether the gradient of the log-density is linear in two features of the
+    /// observation (see [`StateDist::add_grad_from_sums`]), so that it can be summed over
+    /// the observations first and evaluated once.
+    pub(crate) fn has_linear_gradient(&self) -> bool {
+        !matches!(self.family, Family::Weibull | Family::WrappedCauchy)
+    }
+
+    /// Adds the gradient of Σ_t w_t log f(x_t) with respect to the working parameters to
+    /// `out`, from the weighted sums s = (Σ w, Σ w a, Σ w b) of two features (a, b) of
+    /// each observation: (u, v) for gamma, von Mises and Poisson; (d, d²) with d the
+    /// deviation from the mean parameter for the normal (d = x − μ) and the log-normal
+    /// (d = ln x − μ), deviations rather than raw moments so that nothing cancels when
+    /// the spread is small next to the mean. The per-observation form is
+    /// [`StateDist::add_grad`].
+    pub(crate) fn add_grad_from_sums(&self, s: [f64; 3], out: &mut [f64]) {
         let c = &self.c;
+        let [s0, sa, sb] = s;
         match self.family {
-            Family::Gamma => c[2] + (c[0] - 1.0) * v - c[1] * u,
-            Family::Weibull => {
-                let z = v - c[1];
-                c[2] + (c[0] - 1.0) * z - (c[0] * z).exp()
+            Family::Gamma => {
+                let (k, r) = (c[0], c[1]);
+                let a = c[3] * s0 + sb; // Σ w ∂/∂k
+                let b = k * s0 - r * sa; // Σ w r ∂/∂r
+                out[0] += 2.0 * k * a + b;
+                out[1] += -2.0 * k * a - 2.0 * b;
             }
-            Family::LogNormal => {
-                let d = v - c[0];
-                c[2] - v - 0.5 * d * d * c[1]
+            Family::LogNormal | Family::Normal => {
+                out[0] += c[1] * sa;
+                out[1] += c[1] * sb - s0;
             }
-            Family::Normal => {
-                let d = u - c[0];
-                c[2] - 0.5 * d * d * c[1]
+            Family::Poisson => out[0] += sa - c[1] * s0,
+            Family::VonMises => {
+                out[0] += sa - c[3] * c[0] * s0;
+                out[1] += sb - c[3] * c[1] * s0;
             }
-            Family::Poisson => u * c[0] - c[1] - v,
-            Family::VonMises => c[0] * u + c[1] * v + c[2],
-            Family::WrappedCauchy => {
-                let d = 1.0 + c[2] * c[2] - 2.0 * c[3] * (c[0] * u + c[1] * v);
-                c[5] - d.ln()
+            Family::Weibull | Family::WrappedCauchy => {
+                unreachable!("gradient not linear in the features: use add_grad")
             }
         }
     }
@@ -318,6 +347,32 @@ impl StateDist {
                 out[0] += weight * (-2.0 * q * a - da / d);
                 out[1] += weight * (-2.0 * q * b - db / d);
             }
+        }
+    }
+}
+
+/// Log-density of a state with constants `c` (see [`StateDist`]) at features (u, v).
+#[inline(always)]
+pub(crate) fn log_density_of(family: Family, c: &[f64; 6], u: f64, v: f64) -> f64 {
+    match family {
+        Family::Gamma => c[2] + (c[0] - 1.0) * v - c[1] * u,
+        Family::Weibull => {
+            let z = v - c[1];
+            c[2] + (c[0] - 1.0) * z - (c[0] * z).exp()
+        }
+        Family::LogNormal => {
+            let d = v - c[0];
+            c[2] - v - 0.5 * d * d * c[1]
+        }
+        Family::Normal => {
+            let d = u - c[0];
+            c[2] - 0.5 * d * d * c[1]
+        }
+        Family::Poisson => u * c[0] - c[1] - v,
+        Family::VonMises => c[0] * u + c[1] * v + c[2],
+        Family::WrappedCauchy => {
+            let d = 1.0 + c[2] * c[2] - 2.0 * c[3] * (c[0] * u + c[1] * v);
+            c[5] - d.ln()
         }
     }
 }

@@ -32,7 +32,7 @@ use serde::{Deserialize, Serialize};
 use super::data::Data;
 use super::dists::Family;
 use super::error::HmmError;
-use super::forward::loglik_grad;
+use super::forward::{ScratchPool, loglik_grad_pooled};
 use super::inference::{Covariance, hessian_covariance};
 use super::io::CovariateScaling;
 use super::model::Model;
@@ -161,6 +161,8 @@ pub struct Objective {
     spec: ValidSpec,
     data: Prepared,
     evals: AtomicUsize,
+    /// per-thread work buffers of the forward–backward pass, kept between evaluations
+    scratch: ScratchPool,
 }
 
 impl Objective {
@@ -174,6 +176,7 @@ impl Objective {
             spec,
             data,
             evals: AtomicUsize::new(0),
+            scratch: ScratchPool::default(),
         })
     }
     pub fn valid_spec(&self) -> &ValidSpec {
@@ -188,11 +191,11 @@ impl Objective {
     /// log L and its exact gradient with respect to the working parameters.
     pub fn evaluate(&self, working: &[f64]) -> (f64, Vec<f64>) {
         self.evals.fetch_add(1, Ordering::Relaxed);
-        loglik_grad(&self.spec, &self.data, working, true)
+        loglik_grad_pooled(&self.spec, &self.data, working, true, &self.scratch)
     }
     /// log L only (forward pass).
     pub fn loglik(&self, working: &[f64]) -> f64 {
-        loglik_grad(&self.spec, &self.data, working, false).0
+        loglik_grad_pooled(&self.spec, &self.data, working, false, &self.scratch).0
     }
     pub fn evaluations(&self) -> usize {
         self.evals.load(Ordering::Relaxed)

@@ -1,21 +1,54 @@
 //! Scaled forward algorithm for the log-likelihood and the backward pass that turns it
 //! into the exact gradient with respect to the working parameters.
 //!
-//! The forward pass keeps α̂_t (normalised forward probabilities) and the scale factors
-//! c_t; log L = Σ_t (ln c_t + m_t), where m_t is the largest state log-density at step t
-//! (subtracted before exponentiating so that no density underflows). The backward pass
-//! runs the scaled backward recursion and, in the same sweep, accumulates the expected
-//! sufficient statistics: state probabilities γ_t(j) = α̂_t(j) β̂_t(j) weight the
-//! derivatives of the log-densities, and pair probabilities
-//! ξ_t(i,j) = α̂_t(i) Γ_ij(t) f_j(t+1) β̂_{t+1}(j) / c_{t+1} weight the derivatives of
-//! log Γ_ij, which for the multinomial logit collapse to (ξ_t(i,j) − Γ_ij γ_t(i))·(1, x_t).
-//! Memory per series is O(T·N) plus, with covariates, a per-series scratch of the T
-//! transition matrices that is freed when the series is done (at most one per thread);
-//! nothing of size T × N × N is kept across series.
+//! The forward pass keeps α̂_t (forward probabilities times a power-of-two scale) and
+//! the scale factors s_t; log L = Σ_t m_t − Σ_t ln s_t + ln Σ_j α̂_{T−1}(j), where m_t is
+//! the largest state log-density at step t (subtracted before exponentiating so that no
+//! density underflows). The backward pass runs the scaled backward recursion from
+//! β̂_{T−1} = 1/Σ_j α̂_{T−1}(j) with the same s_t, so that γ_t(j) = α̂_t(j) β̂_t(j) are the
+//! state probabilities; in the same sweep it accumulates the pair terms
+//! ξ_t(i,j) = α̂_t(i) Γ_ij(t) f_j(t+1) β̂_{t+1}(j) s_{t+1}, which weight the derivatives of
+//! log Γ_ij; for the multinomial logit these collapse to (ξ_t(i,j) − Γ_ij γ_t(i))·(1, x_t).
+//! The γ_t then weight the derivatives of the log-densities.
+//!
+//! # Hot-path layout (why it looks like this)
+//! One evaluation of W1 (10⁶ steps, 3 states, 4 covariates) needs about 10⁷
+//! exponentials, and the recursions are serial in t. The pass is therefore split into
+//! whole-series phases, each a simple loop that the compiler vectorises or that has a
+//! short loop-carried dependency:
+//! 1. **Γ(x_t) for all t** ([`fill_gammas`]): the N(N − 1) linear predictors of a step
+//!    are 1 + p vector multiply-adds of transposed coefficients; all T·N(N − 1)
+//!    predictors then go through one vectorised exponential ([`crate::hmm::vexp`],
+//!    full double precision, no libm call) and the rows are normalised.
+//! 2. **State log-densities for all t**, stream by stream with the family matched once
+//!    per stream (the per-state constants — ln Γ(k), ln I₀(κ), … — come from
+//!    [`StateDist`], built once per evaluation; ln x, cos θ, sin θ of the data are
+//!    features computed once when the data are prepared). Then the per-step maximum is
+//!    subtracted and the whole T × N block is exponentiated in one vectorised call.
+//! 3. **Forward recursion**: per step an N × N vector–matrix product and a multiply by
+//!    the densities, on fixed-size arrays (the state count is a const generic, N = 1…6
+//!    dispatched by a `match`, so the loops unroll and nothing is bounds-checked).
+//!    Rescaling is by an exact power of two and only when the sum falls below 2⁻¹²⁸, so
+//!    that the branch is predicted and the next step never waits for a division or a
+//!    logarithm; log L needs one logarithm per series.
+//! 4. **Backward recursion** with the transition part of the gradient: per step the
+//!    N(N − 1) coefficients (ξ − Γγ) and their products with (1, x_t) into accumulators
+//!    in the layout of the coefficients; γ_t overwrites α̂_t in place.
+//! 5. **Density gradients** from the γ_t, stream by stream: for the families whose
+//!    log-density gradient is linear in two features of the observation (gamma, von
+//!    Mises, Poisson, normal, log-normal) only Σγ, Σγa, Σγb per state are accumulated and
+//!    the gradient is formed once per series; Weibull and wrapped Cauchy go per step.
+//!
+//! Memory: per series O(T·N²) work buffers (Γ, predictors, densities, α̂/γ, scales —
+//! 22 doubles per step for N = 3) in a [`Scratch`] that a thread takes from a pool and
+//! reuses for the next series, so at most one exists per thread and nothing of size
+//! T × N × N is kept per series; the buffers are grown, never zeroed (every element is
+//! written before it is read). An [`crate::hmm::Objective`] keeps its pool between
+//! evaluations (a few MiB per thread for W1), which saves re-faulting the pages.
 //!
 //! Series are independent and share the parameters: they are evaluated in parallel with
 //! rayon into a vector and summed in series order, so the result is bitwise identical
-//! for any number of threads.
+//! for any number of threads (no buffer content ever leaks into a result).
 //!
 //! # Formula
 //! Scaled forward–backward: Zucchini, MacDonald & Langrock (2016), *Hidden Markov Models
@@ -24,12 +57,45 @@
 //! Markov Models*, ch. 10); stationary-start derivative from δ(I − Γ + U) = 1:
 //! dδ = δ dΓ (I − Γ + U)⁻¹.
 
+use std::sync::Mutex;
+
 use nalgebra::DVector;
 use rayon::prelude::*;
 
-use super::dists::StateDist;
+use super::dists::{Family, StateDist, log_density_of};
 use super::spec::{PSeries, Prepared, ValidSpec, beta_row, softmax_ref};
-use super::transitions::{fill_gamma_n, stationary_flat, stationary_system};
+use super::transitions::{fill_gammas, stationary_flat, stationary_system};
+use super::vexp::exp_in_place;
+
+/// Per-thread work buffers of [`Evaluator::series_pass`], reused from one series to the
+/// next so that the hot path allocates nothing per series. Every buffer is resized and
+/// fully overwritten before it is read: results never depend on what a buffer held.
+#[derive(Default)]
+pub(crate) struct Scratch {
+    /// Γ(x_t), T × N × N
+    gam: Vec<f64>,
+    /// linear predictors, then their exponentials, T × N(N − 1)
+    eta: Vec<f64>,
+    /// scaled state densities, T × N
+    dens: Vec<f64>,
+    /// α̂_t, replaced by γ_t during the backward pass, T × N
+    alpha: Vec<f64>,
+    /// power-of-two scale factor s_t of each step
+    scale: Vec<f64>,
+}
+
+/// The forward sums are rescaled (by a power of two) when they fall below this. Far
+/// enough above the smallest normal number (2⁻¹⁰²²) that one more step cannot underflow
+/// unless a transition probability is below ~e⁻⁶⁵⁰.
+const RESCALE_BELOW: f64 = f64::from_bits((1023 - 128) << 52); // 2⁻¹²⁸
+
+/// Makes `v` at least `len` long. Existing contents are kept: callers overwrite the
+/// first `len` elements before reading them, so no zeroing pass is needed.
+fn grow(v: &mut Vec<f64>, len: usize) {
+    if v.len() < len {
+        v.resize(len, 0.0);
+    }
+}
 
 /// Everything one parameter vector implies, computed once per evaluation.
 pub(crate) struct Evaluator<'a> {
@@ -158,40 +224,6 @@ impl<'a> Evaluator<'a> {
         }
     }
 
-    #[inline]
-    fn add_density_grad<const N: usize>(
-        &self,
-        s: &PSeries,
-        t: usize,
-        gam: &[f64; N],
-        grad: &mut [f64],
-    ) {
-        let spec = self.spec;
-        for (k, d) in self.dists.iter().enumerate() {
-            let [u, v] = s.feats[k][t];
-            if u.is_nan() {
-                continue;
-            }
-            let np = spec.spec().streams[k].family.n_params();
-            let off = spec.stream_offset[k];
-            if let (Some(z), Some(zo)) = (&self.zero[k], spec.zero_offset[k]) {
-                if u == 0.0 {
-                    for (j, &w) in gam.iter().enumerate() {
-                        grad[zo + j] += w * (1.0 - z[j][2]);
-                    }
-                    continue;
-                }
-                for (j, &w) in gam.iter().enumerate() {
-                    grad[zo + j] -= w * z[j][2];
-                }
-            }
-            let block = &mut grad[off..off + N * np];
-            for (j, (&w, dj)) in gam.iter().zip(&d[..N]).enumerate() {
-                dj.add_grad(u, v, w, &mut block[j * np..(j + 1) * np]);
-            }
-        }
-    }
-
     /// Log-likelihood of one series and, if `grad` is given, its gradient added into it;
     /// if `post` is given (length T·N) it receives the state probabilities.
     pub fn series_pass(
@@ -200,55 +232,222 @@ impl<'a> Evaluator<'a> {
         grad: Option<&mut [f64]>,
         post: Option<&mut [f64]>,
     ) -> f64 {
-        // a compile-time state count lets the compiler unroll the O(N²) inner loops
+        self.series_pass_with(s, grad, post, &mut Scratch::default())
+    }
+
+    /// [`Evaluator::series_pass`] with caller-owned scratch buffers (one per thread).
+    fn series_pass_with(
+        &self,
+        s: &PSeries,
+        grad: Option<&mut [f64]>,
+        post: Option<&mut [f64]>,
+        sc: &mut Scratch,
+    ) -> f64 {
+        // a compile-time state count (and off-diagonal count M = N(N − 1)) lets the
+        // compiler unroll the O(N²) inner loops and keep rows in registers
         match self.spec.n_states() {
-            1 => self.series_pass_n::<1>(s, grad, post),
-            2 => self.series_pass_n::<2>(s, grad, post),
-            3 => self.series_pass_n::<3>(s, grad, post),
-            4 => self.series_pass_n::<4>(s, grad, post),
-            5 => self.series_pass_n::<5>(s, grad, post),
-            _ => self.series_pass_n::<6>(s, grad, post),
+            1 => self.series_pass_n::<1, 0>(s, grad, post, sc),
+            2 => self.series_pass_n::<2, 2>(s, grad, post, sc),
+            3 => self.series_pass_n::<3, 6>(s, grad, post, sc),
+            4 => self.series_pass_n::<4, 12>(s, grad, post, sc),
+            5 => self.series_pass_n::<5, 20>(s, grad, post, sc),
+            _ => self.series_pass_n::<6, 30>(s, grad, post, sc),
         }
     }
 
-    fn series_pass_n<const N: usize>(
+    /// State log-densities of the whole series into `ld` (T × N), stream by stream, with
+    /// the family matched once per stream rather than once per observation.
+    fn fill_log_dens<const N: usize>(&self, s: &PSeries, ld: &mut [f64]) {
+        if self.dists.is_empty() {
+            ld.iter_mut().for_each(|x| *x = 0.0);
+        }
+        for (k, d) in self.dists.iter().enumerate() {
+            // the first stream overwrites (the buffer holds stale values), later ones add
+            let first = k == 0;
+            let fam = d[0].family();
+            let c: [[f64; 6]; N] = std::array::from_fn(|j| *d[j].consts());
+            let zero = self.zero[k].as_deref();
+            let feats = &s.feats[k];
+            // one monomorphised loop per family: `log_density_of` inlines with the match
+            // resolved at compile time
+            macro_rules! stream_loop {
+                ($fam:expr) => {
+                    for (l, &[u, v]) in ld.chunks_exact_mut(N).zip(feats) {
+                        if first {
+                            l.iter_mut().for_each(|x| *x = 0.0);
+                        }
+                        if u.is_nan() {
+                            continue;
+                        }
+                        match zero {
+                            Some(z) if u == 0.0 => {
+                                for (o, zj) in l.iter_mut().zip(z) {
+                                    *o += zj[0];
+                                }
+                            }
+                            Some(z) => {
+                                for ((o, zj), cj) in l.iter_mut().zip(z).zip(&c) {
+                                    *o += zj[1] + log_density_of($fam, cj, u, v);
+                                }
+                            }
+                            None => {
+                                for (o, cj) in l.iter_mut().zip(&c) {
+                                    *o += log_density_of($fam, cj, u, v);
+                                }
+                            }
+                        }
+                    }
+                };
+            }
+            match fam {
+                Family::Gamma => stream_loop!(Family::Gamma),
+                Family::Weibull => stream_loop!(Family::Weibull),
+                Family::LogNormal => stream_loop!(Family::LogNormal),
+                Family::VonMises => stream_loop!(Family::VonMises),
+                Family::WrappedCauchy => stream_loop!(Family::WrappedCauchy),
+                Family::Normal => stream_loop!(Family::Normal),
+                Family::Poisson => stream_loop!(Family::Poisson),
+            }
+        }
+    }
+
+    /// Adds the gradient of Σ_t Σ_j γ_t(j) log f_j(x_t) (all streams, zero masses
+    /// included) from the state probabilities `gam` (T × N).
+    fn add_density_grads<const N: usize>(&self, s: &PSeries, gam: &[f64], grad: &mut [f64]) {
+        let spec = self.spec;
+        for (k, d) in self.dists.iter().enumerate() {
+            let feats = &s.feats[k];
+            let np = spec.spec().streams[k].family.n_params();
+            let off = spec.stream_offset[k];
+            let has_zero = self.zero[k].is_some();
+            // Σ γ over zeros and over positive values (zero-mass gradient)
+            let mut zsum = [[0.0; 2]; N];
+            let block = &mut grad[off..off + N * np];
+            if d[0].has_linear_gradient() {
+                // (Σ γ, Σ γ a, Σ γ b) per state, (a, b) the features the gradient is linear
+                // in (see `add_grad_from_sums`); one loop per feature map, no match inside
+                let mut sums = [[0.0; 3]; N];
+                macro_rules! sums_loop {
+                    ($feat:expr) => {
+                        for (w, &[u, v]) in gam.chunks_exact(N).zip(feats) {
+                            if u.is_nan() {
+                                continue;
+                            }
+                            if has_zero && u == 0.0 {
+                                for (z, &wj) in zsum.iter_mut().zip(w) {
+                                    z[0] += wj;
+                                }
+                                continue;
+                            }
+                            for (j, (sm, &wj)) in sums.iter_mut().zip(w).enumerate() {
+                                let (a, b) = $feat(j, u, v);
+                                sm[0] += wj;
+                                sm[1] += wj * a;
+                                sm[2] += wj * b;
+                            }
+                            if has_zero {
+                                for (z, &wj) in zsum.iter_mut().zip(w) {
+                                    z[1] += wj;
+                                }
+                            }
+                        }
+                    };
+                }
+                let mu: [f64; N] = std::array::from_fn(|j| d[j].consts()[0]);
+                match d[0].family() {
+                    // deviations d = x − μ_j and d² (no cancellation for small spreads)
+                    Family::Normal => sums_loop!(|j: usize, u: f64, _v: f64| {
+                        let e = u - mu[j];
+                        (e, e * e)
+                    }),
+                    Family::LogNormal => sums_loop!(|j: usize, _u: f64, v: f64| {
+                        let e = v - mu[j];
+                        (e, e * e)
+                    }),
+                    // gamma, von Mises, Poisson: the features themselves
+                    _ => sums_loop!(|_j: usize, u: f64, v: f64| (u, v)),
+                }
+                for (j, sm) in sums.iter().enumerate() {
+                    d[j].add_grad_from_sums(*sm, &mut block[j * np..(j + 1) * np]);
+                }
+            } else {
+                // gradient not linear in the features: per observation
+                let mut acc = [[0.0; 2]; N];
+                for (w, &[u, v]) in gam.chunks_exact(N).zip(feats) {
+                    if u.is_nan() {
+                        continue;
+                    }
+                    if has_zero && u == 0.0 {
+                        for (z, &wj) in zsum.iter_mut().zip(w) {
+                            z[0] += wj;
+                        }
+                        continue;
+                    }
+                    for ((a, &wj), dd) in acc.iter_mut().zip(w).zip(d) {
+                        dd.add_grad(u, v, wj, &mut a[..np]);
+                    }
+                    if has_zero {
+                        for (z, &wj) in zsum.iter_mut().zip(w) {
+                            z[1] += wj;
+                        }
+                    }
+                }
+                for (j, a) in acc.iter().enumerate() {
+                    for (o, x) in block[j * np..(j + 1) * np].iter_mut().zip(a) {
+                        *o += x;
+                    }
+                }
+            }
+            if let (Some(z), Some(zo)) = (&self.zero[k], spec.zero_offset[k]) {
+                // ∂/∂w_j: (1 − z_j) at a zero, −z_j at a positive value
+                for (j, zs) in zsum.iter().enumerate() {
+                    grad[zo + j] += zs[0] * (1.0 - z[j][2]) - zs[1] * z[j][2];
+                }
+            }
+        }
+    }
+
+    fn series_pass_n<const N: usize, const M: usize>(
         &self,
         s: &PSeries,
-        mut grad: Option<&mut [f64]>,
+        grad: Option<&mut [f64]>,
         post: Option<&mut [f64]>,
+        sc: &mut Scratch,
     ) -> f64 {
-        let n = N;
-        debug_assert_eq!(n, self.spec.n_states());
+        debug_assert_eq!(N, self.spec.n_states());
+        debug_assert_eq!(M, N * (N - 1));
         let p = self.spec.n_covariates();
         let t_len = s.len;
-        let nn = n * n;
-        // Γ(x_t) for t = 0..T−1 (row 0 also serves the stationary start); one matrix
-        // when there are no covariates.
+        if t_len == 0 {
+            return 0.0;
+        }
+        let nn = N * N;
+        // --- 1. Γ(x_t), t = 0..T−2 (block 0 also serves the stationary start); one
+        // matrix when there are no covariates
         let n_gam = if p == 0 {
             1
         } else {
             t_len.saturating_sub(1).max(1)
         };
-        let mut gam = vec![0.0; n_gam * nn];
-        for (t, g) in gam.chunks_exact_mut(nn).enumerate() {
-            fill_gamma_n::<N>(&self.beta, &s.cov[t * p..t * p + p], g);
-        }
-        let gidx = |t: usize| if p == 0 { 0 } else { t * nn };
-        let delta = match self.initial(s, &gam[..nn]) {
-            Ok(d) => d,
-            Err(_) => return f64::NAN,
-        };
-        let mut alpha = vec![0.0; t_len * n];
-        let mut dens = vec![0.0; t_len * n];
-        // 1 / c_t
-        let mut scale = vec![0.0; t_len];
-        let mut ll = 0.0;
-        // Π c_t is accumulated and its logarithm taken only when it gets small, which
-        // saves a logarithm per step (c_t ≤ 1 because the densities are scaled to max 1).
-        let mut prod_c = 1.0_f64;
-        for t in 0..t_len {
-            let f = &mut dens[t * n..(t + 1) * n];
-            self.log_dens_n::<N>(s, t, f);
+        let k = 1 + p;
+        // coefficients transposed: bt[c][r] (see fill_gammas)
+        let bt: Vec<[f64; M]> = (0..k)
+            .map(|c| std::array::from_fn(|r| self.beta[r * k + c]))
+            .collect();
+        grow(&mut sc.gam, n_gam * nn);
+        fill_gammas::<N, M>(
+            &self.beta,
+            &bt,
+            &s.cov[..n_gam * p],
+            &mut sc.eta,
+            &mut sc.gam[..n_gam * nn],
+        );
+        // --- 2. state densities of the whole series, each step scaled so that its
+        // largest density is exactly 1 (ln of that maximum, m_t, is added to log L)
+        grow(&mut sc.dens, t_len * N);
+        self.fill_log_dens::<N>(s, &mut sc.dens[..t_len * N]);
+        let mut ll_m = 0.0;
+        for f in sc.dens[..t_len * N].chunks_exact_mut(N) {
             let m = f.iter().copied().fold(f64::NEG_INFINITY, f64::max);
             if !m.is_finite() {
                 // an observation impossible in every state (or a NaN density)
@@ -258,28 +457,48 @@ impl<'a> Evaluator<'a> {
                     f64::NEG_INFINITY
                 };
             }
-            // the largest is exactly 1: one exp() saved per step
-            f.iter_mut()
-                .for_each(|x| *x = if *x == m { 1.0 } else { (*x - m).exp() });
-            ll += m;
-            let (prev, cur) = alpha.split_at_mut(t * n);
-            let a = &mut cur[..n];
+            ll_m += m;
+            f.iter_mut().for_each(|x| *x -= m);
+        }
+        exp_in_place(&mut sc.dens[..t_len * N]);
+        let dens = &sc.dens[..t_len * N];
+        let gam_rows: &[[f64; N]] = sc.gam[..n_gam * nn].as_chunks::<N>().0;
+        let gmat = |t: usize| -> &[[f64; N]; N] {
+            let b = if p == 0 { 0 } else { t };
+            gam_rows[b * N..(b + 1) * N]
+                .try_into()
+                .expect("N rows per matrix")
+        };
+        let delta = match self.initial(s, &sc.gam[..nn]) {
+            Ok(d) => d,
+            Err(_) => return f64::NAN,
+        };
+        // --- 3. forward recursion: α̂_t = (α̂_{t−1} Γ(x_{t−1})) ∘ f_t · s_t with s_t a
+        // power of two (exact; 1 at most steps)
+        grow(&mut sc.alpha, t_len * N);
+        grow(&mut sc.scale, t_len);
+        let mut esum: i64 = 0;
+        let mut ap = [0.0; N];
+        for (t, ((a_out, f), st)) in sc.alpha[..t_len * N]
+            .chunks_exact_mut(N)
+            .zip(dens.chunks_exact(N))
+            .zip(sc.scale[..t_len].iter_mut())
+            .enumerate()
+        {
+            let mut a = [0.0; N];
             if t == 0 {
-                for j in 0..n {
+                for j in 0..N {
                     a[j] = delta[j] * f[j];
                 }
             } else {
-                let ap = &prev[(t - 1) * n..];
-                let g = &gam[gidx(t - 1)..gidx(t - 1) + nn];
-                a.iter_mut().for_each(|x| *x = 0.0);
-                for i in 0..n {
-                    let ai = ap[i];
-                    for j in 0..n {
-                        a[j] += ai * g[i * n + j];
+                let g = gmat(t - 1);
+                for (&ai, gi) in ap.iter().zip(g) {
+                    for (aj, gij) in a.iter_mut().zip(gi) {
+                        *aj += ai * gij;
                     }
                 }
-                for j in 0..n {
-                    a[j] *= f[j];
+                for (aj, fj) in a.iter_mut().zip(f) {
+                    *aj *= fj;
                 }
             }
             let c: f64 = a.iter().sum();
@@ -290,95 +509,119 @@ impl<'a> Evaluator<'a> {
                     f64::NEG_INFINITY
                 };
             }
-            let inv = 1.0 / c;
-            a.iter_mut().for_each(|x| *x *= inv);
-            scale[t] = inv;
-            if c < 1e-100 {
-                ll += c.ln();
+            // Rescale only when the sum has fallen below 2⁻¹²⁸ (the sums never grow:
+            // Γ is stochastic and f ≤ 1), by s_t = 2^(1023−e) for the biased exponent e of
+            // c, which brings it into [1, 2) exactly (a subnormal c has e = 0 and is
+            // scaled by 2¹⁰²³, still exact). The test is a well-predicted branch, so the
+            // next step does not wait for the scaling: the loop-carried dependency is
+            // just the N × N product and the density multiply.
+            let sf = if c < RESCALE_BELOW {
+                let e = c.to_bits() >> 52;
+                esum += e as i64 - 1023;
+                let sf = f64::from_bits((2046 - e) << 52);
+                a.iter_mut().for_each(|x| *x *= sf);
+                sf
             } else {
-                // stays ≥ 1e-200 · 1e-100, far above the smallest normal f64
-                prod_c *= c;
-                if prod_c < 1e-200 {
-                    ll += prod_c.ln();
-                    prod_c = 1.0;
-                }
-            }
+                1.0
+            };
+            a_out.copy_from_slice(&a);
+            *st = sf;
+            ap = a;
         }
-        ll += prod_c.ln();
+        let a_sum: f64 = ap.iter().sum();
+        let ll = ll_m + esum as f64 * std::f64::consts::LN_2 + a_sum.ln();
         if grad.is_none() && post.is_none() {
             return ll;
         }
-        let mut post = post;
-        let k = 1 + p;
-        let bo = self.spec.beta_offset;
-        let mut bhat = [1.0; N];
-        let mut bnew = [0.0; N];
-        let mut w = [0.0; N];
-        let mut gvec = [0.0; N];
-        let mut coef = vec![0.0; nn];
+        // --- 4. backward recursion with β̂_{T−1} = 1/Σα̂_{T−1}, so that
+        // γ_t = α̂_t ∘ β̂_t exactly (no further normalisation)
+        let mut grad = grad;
+        let want_grad = grad.is_some();
+        let scale = &sc.scale[..t_len];
+        let alpha = &mut sc.alpha[..t_len * N];
+        // Σ_t (ξ_t(i,j) − Γ_ij γ_t(i)) · (1, x_t): acc[c][r] for off-diagonal row r
+        let mut acc: Vec<[f64; M]> = vec![[0.0; M]; if want_grad { k } else { 0 }];
+        let mut bhat = [1.0 / a_sum; N];
         for t in (0..t_len).rev() {
-            let at = &alpha[t * n..(t + 1) * n];
-            for j in 0..n {
-                gvec[j] = at[j] * bhat[j];
-            }
-            if let Some(ps) = post.as_deref_mut() {
-                ps[t * n..(t + 1) * n].copy_from_slice(&gvec);
-            }
-            if let Some(g) = grad.as_deref_mut() {
-                self.add_density_grad::<N>(s, t, &gvec, g);
-            }
-            let f = &dens[t * n..(t + 1) * n];
-            if t > 0 {
-                for j in 0..n {
-                    w[j] = f[j] * bhat[j] * scale[t];
-                }
-                let gm = &gam[gidx(t - 1)..gidx(t - 1) + nn];
-                let ap = &alpha[(t - 1) * n..t * n];
-                for i in 0..n {
-                    let mut b = 0.0;
-                    for j in 0..n {
-                        b += gm[i * n + j] * w[j];
-                    }
-                    bnew[i] = b;
-                }
-                if let Some(g) = grad.as_deref_mut() {
-                    let x = &s.cov[(t - 1) * p..t * p];
-                    // off-diagonal pairs in the layout order: the row index advances
-                    let mut r = 0;
-                    for i in 0..n {
-                        let gi = ap[i] * bnew[i];
-                        let ai = ap[i];
-                        for j in 0..n {
-                            if j == i {
-                                continue;
-                            }
-                            // ξ(i,j) − Γ_ij γ(i)
-                            let gij = gm[i * n + j];
-                            let c = gij * (ai * w[j] - gi);
-                            if p == 0 {
-                                coef[r] += c;
-                            } else {
-                                let gr = &mut g[bo + r * k..bo + (r + 1) * k];
-                                gr[0] += c;
-                                for (gc, xc) in gr[1..].iter_mut().zip(x) {
-                                    *gc += c * xc;
-                                }
-                            }
-                            r += 1;
-                        }
-                    }
-                }
-                std::mem::swap(&mut bhat, &mut bnew);
-            } else if let Some(g) = grad.as_deref_mut() {
-                self.add_initial_grad(s, &gvec, f, &bhat, 1.0 / scale[0], &delta, &gam[..nn], g);
-            }
-        }
-        if let (Some(g), 0) = (grad, p) {
+            let mut gv = [0.0; N];
             {
-                for (r, c) in coef.iter().enumerate().take(n * (n - 1)) {
-                    g[bo + r] += c;
+                let at = &mut alpha[t * N..(t + 1) * N];
+                for ((g, a), b) in gv.iter_mut().zip(at.iter()).zip(&bhat) {
+                    *g = a * b;
+                }
+                // γ_t replaces α̂_t, which is no longer needed
+                at.copy_from_slice(&gv);
+            }
+            let f = &dens[t * N..(t + 1) * N];
+            if t == 0 {
+                if let Some(g) = grad.as_deref_mut() {
+                    self.add_initial_grad(
+                        s,
+                        &gv,
+                        f,
+                        &bhat,
+                        1.0 / scale[0],
+                        &delta,
+                        &sc.gam[..nn],
+                        g,
+                    );
+                }
+                break;
+            }
+            let mut w = [0.0; N];
+            for ((wj, fj), bj) in w.iter_mut().zip(f).zip(&bhat) {
+                *wj = fj * bj * scale[t];
+            }
+            let gm = gmat(t - 1);
+            let mut bnew = [0.0; N];
+            for (bi, gi) in bnew.iter_mut().zip(gm) {
+                let mut b = 0.0;
+                for (gij, wj) in gi.iter().zip(&w) {
+                    b += gij * wj;
+                }
+                *bi = b;
+            }
+            if want_grad {
+                let ap = &alpha[(t - 1) * N..t * N];
+                // off-diagonal pairs in the layout order: the row index advances
+                let mut cr = [0.0; M];
+                let mut r = 0;
+                for i in 0..N {
+                    let ai = ap[i];
+                    let gi = ai * bnew[i];
+                    for j in 0..N {
+                        if j == i {
+                            continue;
+                        }
+                        // ξ(i,j) − Γ_ij γ(i)
+                        cr[r] = gm[i][j] * (ai * w[j] - gi);
+                        r += 1;
+                    }
+                }
+                for (a, c) in acc[0].iter_mut().zip(&cr) {
+                    *a += c;
+                }
+                let x = &s.cov[(t - 1) * p..t * p];
+                for (ac, &xc) in acc[1..].iter_mut().zip(x) {
+                    for (a, c) in ac.iter_mut().zip(&cr) {
+                        *a += c * xc;
+                    }
                 }
             }
+            bhat = bnew;
+        }
+        let gam_post = &sc.alpha[..t_len * N];
+        if let Some(g) = grad {
+            let bo = self.spec.beta_offset;
+            for (c, ac) in acc.iter().enumerate() {
+                for (r, a) in ac.iter().enumerate() {
+                    g[bo + r * k + c] += a;
+                }
+            }
+            self.add_density_grads::<N>(s, gam_post, g);
+        }
+        if let Some(ps) = post {
+            ps[..t_len * N].copy_from_slice(gam_post);
         }
         ll
     }
@@ -424,6 +667,13 @@ impl<'a> Evaluator<'a> {
     }
 }
 
+/// Work buffers shared by the threads of an evaluation: a thread takes one for a series
+/// and returns it, so at most one per thread exists and it is reused from series to
+/// series (and, when the pool is kept, from evaluation to evaluation: the fit keeps one
+/// in its [`crate::hmm::Objective`], which saves re-faulting the pages each time).
+#[derive(Default)]
+pub(crate) struct ScratchPool(Mutex<Vec<Scratch>>);
+
 /// Total log-likelihood (and gradient) over all series, parallel over series, summed in
 /// series order so that the result does not depend on the number of threads.
 pub(crate) fn loglik_grad(
@@ -432,19 +682,41 @@ pub(crate) fn loglik_grad(
     th: &[f64],
     want_grad: bool,
 ) -> (f64, Vec<f64>) {
+    loglik_grad_pooled(spec, data, th, want_grad, &ScratchPool::default())
+}
+
+/// [`loglik_grad`] with a caller-kept [`ScratchPool`].
+pub(crate) fn loglik_grad_pooled(
+    spec: &ValidSpec,
+    data: &Prepared,
+    th: &[f64],
+    want_grad: bool,
+    pool: &ScratchPool,
+) -> (f64, Vec<f64>) {
     let ev = Evaluator::new(spec, th);
     let np = spec.n_params();
+    let pool = &pool.0;
     let parts: Vec<(f64, Vec<f64>)> = data
         .series
         .par_iter()
         .map(|s| {
-            if want_grad {
+            let mut sc = pool
+                .lock()
+                .map(|mut p| p.pop())
+                .ok()
+                .flatten()
+                .unwrap_or_default();
+            let out = if want_grad {
                 let mut g = vec![0.0; np];
-                let ll = ev.series_pass(s, Some(&mut g), None);
+                let ll = ev.series_pass_with(s, Some(&mut g), None, &mut sc);
                 (ll, g)
             } else {
-                (ev.series_pass(s, None, None), Vec::new())
+                (ev.series_pass_with(s, None, None, &mut sc), Vec::new())
+            };
+            if let Ok(mut p) = pool.lock() {
+                p.push(sc);
             }
+            out
         })
         .collect();
     let mut ll = 0.0;

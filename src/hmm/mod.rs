@@ -32,6 +32,7 @@ pub mod residuals;
 pub mod simulate;
 pub mod spec;
 pub mod transitions;
+pub(crate) mod vexp;
 
 pub use data::{Data, Series};
 pub use dists::Family;

@@ -71,6 +71,86 @@ pub(crate) fn fill_gamma_n<const N: usize>(beta: &[f64], x: &[f64], out: &mut [f
     }
 }
 
+/// Γ(x_t) for every row t of a T × p covariate matrix `cov` (T = `out.len() / N²`),
+/// written as consecutive row-major N × N blocks: the batch form of [`fill_gamma_n`]
+/// for the forward pass.
+///
+/// `bt` holds the coefficients transposed, one array per term of (1, x): `bt[c][r]` is
+/// coefficient c of off-diagonal row r (M = N(N − 1) rows in the layout of
+/// [`Params::beta`]), so that the M linear predictors of a step are built by 1 + p
+/// vector multiply-adds. All T·M predictors go through one vectorised exponential
+/// ([`crate::hmm::vexp`]) in the scratch `eta`; a row with a predictor large enough to
+/// risk overflow (≥ ~299, never in practice) is redone by the shifted softmax of
+/// [`fill_gamma_n`].
+pub(crate) fn fill_gammas<const N: usize, const M: usize>(
+    beta: &[f64],
+    bt: &[[f64; M]],
+    cov: &[f64],
+    eta: &mut Vec<f64>,
+    out: &mut [f64],
+) {
+    let p = bt.len() - 1;
+    let nn = N * N;
+    let n_t = out.len() / nn;
+    if M == 0 {
+        // one state: Γ = (1)
+        out.iter_mut().for_each(|g| *g = 1.0);
+        return;
+    }
+    if eta.len() < n_t * M {
+        eta.resize(n_t * M, 0.0);
+    }
+    // every element of eta[..T·M] is written below before it is read
+    let eta = &mut eta[..n_t * M];
+    // linear predictors, same summation order as fill_gamma_n: b₀ + b₁x₁ + … + b_p x_p
+    if p == 0 {
+        for e in eta.chunks_exact_mut(M) {
+            e.copy_from_slice(&bt[0]);
+        }
+    } else {
+        for (e, x) in eta.chunks_exact_mut(M).zip(cov.chunks_exact(p)) {
+            let mut acc = bt[0];
+            for (b, &xc) in bt[1..].iter().zip(x) {
+                for (a, bc) in acc.iter_mut().zip(b) {
+                    *a += bc * xc;
+                }
+            }
+            e.copy_from_slice(&acc);
+        }
+    }
+    super::vexp::exp_in_place(eta);
+    for (t, (g, e)) in out
+        .chunks_exact_mut(nn)
+        .zip(eta.chunks_exact(M))
+        .enumerate()
+    {
+        // off-diagonal exponentials of row i are e[i(N−1)..(i+1)(N−1)]
+        let mut safe = true;
+        for (i, row) in g.chunks_exact_mut(N).enumerate() {
+            let er = &e[i * (N - 1)..(i + 1) * (N - 1)];
+            let mut s = 0.0;
+            for (j, r) in row.iter_mut().enumerate() {
+                *r = match j.cmp(&i) {
+                    std::cmp::Ordering::Less => er[j],
+                    std::cmp::Ordering::Equal => 1.0,
+                    std::cmp::Ordering::Greater => er[j - 1],
+                };
+                s += *r;
+            }
+            safe &= s < EXP_SAFE_SUM;
+            let inv = 1.0 / s;
+            row.iter_mut().for_each(|r| *r *= inv);
+        }
+        if !safe {
+            fill_gamma_n::<N>(beta, &cov[t * p..t * p + p], g);
+        }
+    }
+}
+
+/// A row sum of exponentials above this (≈ e^299) sends the row to the shifted softmax;
+/// below it the unshifted one is exact to rounding, as with [`EXP_SAFE`].
+const EXP_SAFE_SUM: f64 = 1e130;
+
 /// Largest linear predictor for which the unshifted softmax is used: exp(300) × 6 is far
 /// from overflow (≈1.8e308) and the row sum stays accurate.
 const EXP_SAFE: f64 = 300.0;

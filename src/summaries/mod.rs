@@ -18,6 +18,7 @@ pub mod animals;
 pub mod budgets;
 pub mod diagnostics;
 pub mod hotspots;
+pub mod occupancy;
 pub mod projection;
 mod rng;
 
