@@ -4,8 +4,10 @@
 //! (one per animal and segment: independent series sharing parameters), builds each
 //! candidate's transition design from the table's columns, fits every candidate with the
 //! study's random starts, compares them (AIC, BIC), picks one by the study's rule and
-//! decodes it (Viterbi path and local state probabilities). [`write`] saves each model as
-//! JSON, the comparison table and the decoded step table, each atomically.
+//! decodes it (Viterbi path and local state probabilities) and, when it has covariates,
+//! computes its occupancy and transition curves with 95% intervals
+//! ([`crate::summaries::occupancy`]). [`write`] saves each model as JSON, the comparison
+//! table, the decoded step table and the curves, each atomically.
 //!
 //! Streams: the step length (`step_m`, the study's step family, with a per-state zero mass
 //! when `model.zero_mass = true`) and, unless `model.angle = "none"`, the turning angle
@@ -22,12 +24,14 @@ use polars::prelude::*;
 use crate::hmm::design::{Design, RawColumn};
 use crate::hmm::error::HmmError;
 use crate::hmm::inference::{ComparisonRow, compare};
+use crate::hmm::io::CovariateScaling;
 use crate::hmm::{
     Data, Family, FitOptions, FittedModel, InitialDistribution, ModelSpec, Series, StreamSpec, fit,
 };
 use crate::io::{self, WriteError};
 use crate::study::Study;
 use crate::study::model::{AngleFamily, Candidate, ModelSettings, Selection, StepFamily, Term};
+use crate::summaries::occupancy::{CurveRow, Occupancy, OccupancyOptions, occupancy_curves};
 
 /// Problems of the fit stage.
 #[derive(Debug, thiserror::Error)]
@@ -89,6 +93,11 @@ pub struct FitStage {
     pub decoded: Decoded,
     /// The step table the models were fitted to.
     pub steps: DataFrame,
+    /// Occupancy and transition curves of the selected model (when it has covariates and
+    /// a usable covariance), or why they could not be computed.
+    pub curves: Option<Occupancy>,
+    /// Why the curves are absent, when the selected model has covariates.
+    pub curves_note: Option<String>,
 }
 
 impl FitStage {
@@ -182,7 +191,7 @@ pub(crate) fn design_of(terms: &[Term]) -> Design {
     })
 }
 
-/// Raw columns the terms read, from the step table.
+/// Raw columns the terms read, from the step table (original scale).
 fn raw_columns(
     path: &Path,
     df: &DataFrame,
@@ -204,23 +213,70 @@ fn raw_columns(
     Ok(cols)
 }
 
-/// The candidate's design: column names and row-major values (empty without terms).
+/// Centres and scales, in place, every column that a plain numeric term reads, and returns
+/// the (centre, scale) used: the mean and standard deviation of its finite values.
+///
+/// Fitting on standardised covariates keeps the transition coefficients of one order of
+/// magnitude (a raw latitude of 69 with a slope would otherwise swamp the intercept and
+/// stall the optimiser); coefficients are reported per standard deviation and per unit,
+/// and curves are drawn on the original scale. Cyclic and categorical columns are left as
+/// they are (their terms are bounded by construction).
+pub(crate) fn standardise(
+    terms: &[Term],
+    cols: &mut BTreeMap<String, RawColumn>,
+) -> Vec<CovariateScaling> {
+    let mut out = Vec::new();
+    for t in terms {
+        let Term::Numeric { column } = t else {
+            continue;
+        };
+        if out.iter().any(|s: &CovariateScaling| &s.name == column) {
+            continue;
+        }
+        if let Some(RawColumn::Numeric(v)) = cols.get_mut(column) {
+            let finite: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
+            if finite.len() < 2 {
+                continue;
+            }
+            let n = finite.len() as f64;
+            let mean = finite.iter().sum::<f64>() / n;
+            let sd = (finite.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
+            if !(sd > 0.0) {
+                // A constant column: left as it is, so the engine reports it as constant.
+                continue;
+            }
+            for x in v.iter_mut() {
+                *x = (*x - mean) / sd;
+            }
+            out.push(CovariateScaling {
+                name: column.clone(),
+                center: mean,
+                scale: sd,
+            });
+        }
+    }
+    out
+}
+
+/// The candidate's design on standardised numeric columns: column names, row-major
+/// values (empty without terms) and the scaling used.
 fn design_values(
     path: &Path,
     df: &DataFrame,
     c: &Candidate,
-) -> Result<(Vec<String>, Vec<f64>), FitStageError> {
+) -> Result<(Vec<String>, Vec<f64>, Vec<CovariateScaling>), FitStageError> {
     if c.terms.is_empty() {
-        return Ok((Vec::new(), Vec::new()));
+        return Ok((Vec::new(), Vec::new(), Vec::new()));
     }
-    let raw = raw_columns(path, df, &c.terms)?;
+    let mut raw = raw_columns(path, df, &c.terms)?;
+    let scaling = standardise(&c.terms, &mut raw);
     let m = design_of(&c.terms)
         .build(&raw)
         .map_err(|source| FitStageError::Model {
             candidate: c.name.clone(),
             source,
         })?;
-    Ok((m.names().to_vec(), m.values().to_vec()))
+    Ok((m.names().to_vec(), m.values().to_vec(), scaling))
 }
 
 fn spec_of(settings: &ModelSettings, c: &Candidate, covariates: &[String]) -> ModelSpec {
@@ -310,7 +366,7 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
             c.terms.len(),
             settings.starts
         ));
-        let (covariates, values) = design_values(&path, &df, c)?;
+        let (covariates, values, scaling) = design_values(&path, &df, c)?;
         let spec = spec_of(settings, c, &covariates);
         let result = data_of(settings, &bounds, &step, &angle, &covariates, &values)
             .and_then(|data| {
@@ -323,6 +379,10 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
                         ..FitOptions::default()
                     },
                 )
+            })
+            .map(|mut m| {
+                m.set_covariate_scaling(scaling);
+                m
             })
             .map_err(|e| e.to_string());
         if let Err(e) = &result {
@@ -387,7 +447,7 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
         .result
         .as_ref()
         .map_err(|_| FitStageError::SelectedFailed(chosen.candidate.name.clone()))?;
-    let (_, values) = design_values(&path, &df, &chosen.candidate)?;
+    let (_, values, _) = design_values(&path, &df, &chosen.candidate)?;
     let data = data_of(
         settings,
         &bounds,
@@ -415,13 +475,67 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
         probs: probs.iter().flat_map(|p| p.probs.iter().copied()).collect(),
         labels: chosen.candidate.labels.clone(),
     };
+    let (curves, curves_note) = if chosen.candidate.terms.is_empty() {
+        (None, None)
+    } else {
+        let observed = raw_columns(&path, &df, &chosen.candidate.terms)?;
+        match occupancy_curves(
+            model,
+            &chosen.candidate.terms,
+            &observed,
+            &OccupancyOptions::default(),
+        ) {
+            Ok(c) => (Some(c), None),
+            Err(e) => (None, Some(format!("occupancy curves not computed: {e}"))),
+        }
+    };
     Ok(FitStage {
         fits,
         comparison,
         selected,
         decoded,
         steps: df,
+        curves,
+        curves_note,
     })
+}
+
+fn curve_frame(rows: &[CurveRow]) -> PolarsResult<DataFrame> {
+    DataFrame::new_infer_height(vec![
+        Column::new(
+            "covariate".into(),
+            rows.iter()
+                .map(|r| r.covariate.as_str())
+                .collect::<Vec<_>>(),
+        ),
+        Column::new(
+            "value".into(),
+            rows.iter()
+                .map(|r| (!r.value.is_nan()).then_some(r.value))
+                .collect::<Vec<_>>(),
+        ),
+        Column::new(
+            "level".into(),
+            rows.iter().map(|r| r.level.as_deref()).collect::<Vec<_>>(),
+        ),
+        Column::new(
+            "quantity".into(),
+            rows.iter().map(|r| r.quantity.as_str()).collect::<Vec<_>>(),
+        ),
+        Column::new(
+            "estimate".into(),
+            rows.iter().map(|r| r.estimate).collect::<Vec<_>>(),
+        ),
+        Column::new("se".into(), rows.iter().map(|r| r.se).collect::<Vec<_>>()),
+        Column::new(
+            "lower_95".into(),
+            rows.iter().map(|r| r.lower).collect::<Vec<_>>(),
+        ),
+        Column::new(
+            "upper_95".into(),
+            rows.iter().map(|r| r.upper).collect::<Vec<_>>(),
+        ),
+    ])
 }
 
 /// Writes `models/<candidate>.json`, `model_comparison.csv`, `decoded.parquet` and
@@ -563,6 +677,22 @@ pub fn write(study: &Study, stage: &FitStage) -> Result<Vec<PathBuf>, FitStageEr
         written.push(p);
     }
 
+    // Occupancy and transition curves of the selected model across its covariates.
+    if let Some(curves) = stage.curves.as_ref() {
+        for (name, rows) in [
+            ("occupancy_curves.csv", &curves.stationary),
+            ("transition_curves.csv", &curves.transitions),
+        ] {
+            let p = out.join(name);
+            let mut frame = curve_frame(rows).map_err(|e| WriteError {
+                path: p.clone(),
+                reason: e.to_string(),
+            })?;
+            io::write_csv(&p, &mut frame)?;
+            written.push(p);
+        }
+    }
+
     // Which model was selected and how.
     let sel = &stage.fits[stage.selected];
     let summary = serde_json::json!({
@@ -646,7 +776,7 @@ pub fn simulate(
     let animal = text_column(&path, &df, "animal")?;
     let segment = f64_column(&path, &df, "segment")?;
     let bounds = series_bounds(&animal, &segment);
-    let (names, values) = design_values(&path, &df, c)?;
+    let (names, values, _) = design_values(&path, &df, c)?;
     let p = names.len();
     let designs: Vec<SeriesDesign> = bounds
         .iter()

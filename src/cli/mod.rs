@@ -195,6 +195,9 @@ pub fn render_fit(stage: &crate::modelling::FitStage) -> String {
         }
     }
     let _ = writeln!(o, "selected: {}", stage.fits[stage.selected].candidate.name);
+    if let Some(note) = &stage.curves_note {
+        let _ = writeln!(o, "{note}");
+    }
     o
 }
 

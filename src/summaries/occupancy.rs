@@ -12,9 +12,12 @@
 //! observed levels. At each value the design row is rebuilt from the model's own terms
 //! (so cos/sin expansions, reference coding and interactions follow the fitted model
 //! exactly) and δ(x) is the stationary distribution of Γ(x): the solution of δΓ = δ with
-//! Σδ = 1 (Zucchini, MacDonald & Langrock 2016, §2.3). Intervals come from the model's
-//! covariance by the delta method, or by simulation from the estimates' sampling
-//! distribution, as chosen.
+//! Σδ = 1 (Zucchini, MacDonald & Langrock 2016, §2.3). Grids are on the original scale;
+//! a model fitted on standardised columns (its recorded covariate scaling) gets the same
+//! transformation before its design row is built. Intervals come from the model's
+//! covariance: by default as percentiles of 1000 seeded draws from the estimates'
+//! approximate sampling distribution N(θ̂, Σ̂) (so they stay within [0, 1]), or by the
+//! delta method.
 
 use std::collections::BTreeMap;
 
@@ -23,6 +26,7 @@ use serde::Serialize;
 use crate::hmm::design::RawColumn;
 use crate::hmm::error::HmmError;
 use crate::hmm::inference::IntervalMethod;
+use crate::hmm::io::CovariateScaling;
 use crate::hmm::{FittedModel, Model};
 use crate::study::model::Term;
 
@@ -56,7 +60,12 @@ impl Default for OccupancyOptions {
             points: 41,
             level: 0.95,
             cyclic_reference: 12.0,
-            method: IntervalMethod::Delta,
+            // Percentile intervals from draws of the estimates stay inside [0, 1], which
+            // symmetric delta-method intervals on probabilities near 0 or 1 do not.
+            method: IntervalMethod::Simulation {
+                draws: 1000,
+                seed: 1,
+            },
         }
     }
 }
@@ -121,16 +130,27 @@ fn kinds(terms: &[Term]) -> Vec<(String, Kind)> {
     out
 }
 
-/// Builds the model's design row for one set of raw values.
+/// Builds the model's design row for one set of raw values (original scale).
 ///
 /// The design is built from two rows — the values, and the same values with every
 /// categorical column at its reference level — because reference coding needs the
 /// reference level to occur; only the first row is returned.
-fn design_row(terms: &[Term], values: &BTreeMap<String, Value>) -> Result<Vec<f64>, HmmError> {
+fn design_row(
+    terms: &[Term],
+    values: &BTreeMap<String, Value>,
+    scaling: &[CovariateScaling],
+) -> Result<Vec<f64>, HmmError> {
     let mut cols = BTreeMap::new();
     for (name, v) in values {
         let col = match v {
-            Value::Number(x) => RawColumn::Numeric(vec![*x, *x]),
+            Value::Number(x) => {
+                // The model was fitted on standardised columns: transform the same way.
+                let z = scaling
+                    .iter()
+                    .find(|s| &s.name == name)
+                    .map_or(*x, |s| (*x - s.center) / s.scale);
+                RawColumn::Numeric(vec![z, z])
+            }
             Value::Level(l) => {
                 let reference = terms
                     .iter()
@@ -217,7 +237,7 @@ fn describe(v: &Value) -> String {
 }
 
 /// Stationary distribution along each covariate, without intervals, for any model (e.g.
-/// one built from chosen parameters).
+/// one built from chosen parameters), whose covariates are used unscaled.
 ///
 /// # Errors
 /// [`OccupancyError`] when a column is missing or Γ(x) has no stationary distribution.
@@ -233,7 +253,7 @@ pub fn stationary_curves(
         for v in grid {
             let mut values = reference.clone();
             values.insert(name.clone(), v.clone());
-            let x = design_row(terms, &values)?;
+            let x = design_row(terms, &values, &[])?;
             let value = match v {
                 Value::Number(x) => x,
                 Value::Level(_) => f64::NAN,
@@ -257,6 +277,7 @@ pub fn occupancy_curves(
 ) -> Result<Occupancy, OccupancyError> {
     let (reference, axes) = grids(terms, observed, opts)?;
     let labels = fitted.model().valid_spec().state_labels();
+    let scaling = fitted.covariate_scaling().unwrap_or(&[]);
     let n = labels.len();
     let mut stationary = Vec::new();
     let mut transitions = Vec::new();
@@ -264,7 +285,7 @@ pub fn occupancy_curves(
         for v in grid {
             let mut values = reference.clone();
             values.insert(name.clone(), v.clone());
-            let x = design_row(terms, &values)?;
+            let x = design_row(terms, &values, scaling)?;
             let (value, level) = match &v {
                 Value::Number(x) => (*x, None),
                 Value::Level(l) => (f64::NAN, Some(l.clone())),
