@@ -29,7 +29,7 @@
 //! straddle ±180° gives polygons spanning the globe in lon/lat outputs.
 
 use super::projection::Laea;
-use super::{csv_num, CountMethod, Decoded, SummaryError};
+use super::{CountMethod, Decoded, SummaryError, csv_num};
 use rayon::prelude::*;
 use serde::Serialize;
 use std::collections::{BTreeMap, HashMap};
@@ -152,13 +152,13 @@ fn validate(d: &Decoded, o: &HotspotOptions) -> Result<(), SummaryError> {
             "must be a positive number of hours",
         ));
     }
-    if let Some((lon, lat)) = o.centre {
-        if !((-180.0..=180.0).contains(&lon) && (-90.0..=90.0).contains(&lat)) {
-            return Err(SummaryError::option(
-                "centre",
-                format!("({lon}, {lat}) is not a lon/lat position in degrees"),
-            ));
-        }
+    if let Some((lon, lat)) = o.centre
+        && !((-180.0..=180.0).contains(&lon) && (-90.0..=90.0).contains(&lat))
+    {
+        return Err(SummaryError::option(
+            "centre",
+            format!("({lon}, {lat}) is not a lon/lat position in degrees"),
+        ));
     }
     Ok(())
 }

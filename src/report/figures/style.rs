@@ -94,13 +94,13 @@ impl FigureOptions {
                 format!("{w} mm; use 20–600 mm"),
             ));
         }
-        if let Some(h) = self.height_mm {
-            if !(h.is_finite() && (20.0..=600.0).contains(&h)) {
-                return Err(FigureError::input(
-                    "height_mm",
-                    format!("{h} mm; use 20–600 mm"),
-                ));
-            }
+        if let Some(h) = self.height_mm
+            && !(h.is_finite() && (20.0..=600.0).contains(&h))
+        {
+            return Err(FigureError::input(
+                "height_mm",
+                format!("{h} mm; use 20–600 mm"),
+            ));
         }
         if !(72..=1200).contains(&self.dpi) {
             return Err(FigureError::input(
