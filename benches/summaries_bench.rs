@@ -2,19 +2,19 @@
 //! 10^6 steps (50 animals × 20 000 hourly fixes). Prints timings; asserts nothing.
 //! Target: all of it in ≤ 10 s (release build, 2 cores).
 
-use cairn::report::figures::budget::{grouped_budget, hourly_budget};
-use cairn::report::figures::curves::{interval_curves, CurvePanel, IntervalSeries};
-use cairn::report::figures::distributions::{
-    fitted_distributions, DensityCurve, DistributionPanel,
-};
-use cairn::report::figures::map::{hotspot_map, TrackOverlay};
-use cairn::report::figures::models::{model_comparison, ModelScore};
-use cairn::report::figures::residuals::residual_diagnostics;
 use cairn::report::figures::FigureOptions;
+use cairn::report::figures::budget::{grouped_budget, hourly_budget};
+use cairn::report::figures::curves::{CurvePanel, IntervalSeries, interval_curves};
+use cairn::report::figures::distributions::{
+    DensityCurve, DistributionPanel, fitted_distributions,
+};
+use cairn::report::figures::map::{TrackOverlay, hotspot_map};
+use cairn::report::figures::models::{ModelScore, model_comparison};
+use cairn::report::figures::residuals::residual_diagnostics;
 use cairn::summaries::animals::animal_table;
-use cairn::summaries::budgets::{activity_budgets, BootstrapOptions, BudgetOptions};
+use cairn::summaries::budgets::{BootstrapOptions, BudgetOptions, activity_budgets};
 use cairn::summaries::diagnostics::{inverse_normal_cdf, stream_diagnostics};
-use cairn::summaries::hotspots::{hotspot_grids, HotspotOptions};
+use cairn::summaries::hotspots::{HotspotOptions, hotspot_grids};
 use cairn::summaries::{CountMethod, Decoded, DecodedColumns, DielPhase};
 use std::time::Instant;
 

@@ -1,19 +1,19 @@
 mod common;
 
 use cairn::report::figures::budget::{grouped_budget, hourly_budget};
-use cairn::report::figures::curves::{interval_curves, CurvePanel, IntervalSeries};
+use cairn::report::figures::curves::{CurvePanel, IntervalSeries, interval_curves};
 use cairn::report::figures::distributions::{
-    fitted_distributions, DensityCurve, DistributionPanel,
+    DensityCurve, DistributionPanel, fitted_distributions,
 };
-use cairn::report::figures::map::{hotspot_map, km_per_degree_lon, TrackOverlay};
-use cairn::report::figures::models::{model_comparison, ModelScore};
+use cairn::report::figures::map::{TrackOverlay, hotspot_map, km_per_degree_lon};
+use cairn::report::figures::models::{ModelScore, model_comparison};
 use cairn::report::figures::palette::state_hex;
 use cairn::report::figures::residuals::residual_diagnostics;
 use cairn::report::figures::{Figure, FigureError, FigureOptions, FigureWidth};
-use cairn::summaries::budgets::{activity_budgets, BudgetOptions};
-use cairn::summaries::diagnostics::stream_diagnostics;
-use cairn::summaries::hotspots::{hotspot_grid, HotspotOptions};
 use cairn::summaries::CountMethod;
+use cairn::summaries::budgets::{BudgetOptions, activity_budgets};
+use cairn::summaries::diagnostics::stream_diagnostics;
+use cairn::summaries::hotspots::{HotspotOptions, hotspot_grid};
 
 /// Parse the SVG (well-formedness), check its physical width, and return all text
 /// content and all fill/stroke colours.
@@ -238,14 +238,16 @@ fn model_comparison_figure() {
     ] {
         assert!(texts.iter().any(|t| t == s), "{s}");
     }
-    assert!(model_comparison(
-        &[ModelScore {
-            name: "x".into(),
-            aic: f64::NAN
-        }],
-        &FigureOptions::default()
-    )
-    .is_err());
+    assert!(
+        model_comparison(
+            &[ModelScore {
+                name: "x".into(),
+                aic: f64::NAN
+            }],
+            &FigureOptions::default()
+        )
+        .is_err()
+    );
 }
 
 #[test]

@@ -2,7 +2,7 @@ mod common;
 
 use cairn::summaries::animals::animal_table;
 use cairn::summaries::{CountMethod, DielPhase};
-use common::{decoded, row, Row, HOUR_US};
+use common::{HOUR_US, Row, decoded, row};
 
 fn r(animal: &'static str, t: i64, state: usize, p0: f64, step: f64) -> Row {
     Row {
@@ -50,7 +50,10 @@ fn per_animal_spans_shares_and_mean_steps() {
     tv.write_csv(&mut csv).unwrap();
     let csv = String::from_utf8(csv).unwrap();
     let lines: Vec<&str> = csv.lines().collect();
-    assert_eq!(lines[0], "animal,first_fix_utc,last_fix_utc,span_days,fixes,steps,share_rest,share_travel,mean_step_m_rest,mean_step_m_travel");
+    assert_eq!(
+        lines[0],
+        "animal,first_fix_utc,last_fix_utc,span_days,fixes,steps,share_rest,share_travel,mean_step_m_rest,mean_step_m_travel"
+    );
     assert!(lines[2].starts_with("B,1970-01-01T05:00:00Z,1970-01-01T06:00:00Z,"));
     assert!(lines[2].ends_with(",,400"));
 }

@@ -1,9 +1,9 @@
 mod common;
 
-use cairn::summaries::budgets::{activity_budgets, BootstrapOptions, BudgetOptions};
-use cairn::summaries::{CountMethod, Decoded, DielPhase, SummaryError};
-use common::{columns, decoded, row, Row};
 use DielPhase::*;
+use cairn::summaries::budgets::{BootstrapOptions, BudgetOptions, activity_budgets};
+use cairn::summaries::{CountMethod, Decoded, DielPhase, SummaryError};
+use common::{Row, columns, decoded, row};
 
 fn r(
     animal: &'static str,

@@ -1,11 +1,11 @@
 mod common;
 
 use cairn::summaries::hotspots::{
-    cell_polygon, hotspot_grid, hotspot_grids, DayBasis, HotspotOptions,
+    DayBasis, HotspotOptions, cell_polygon, hotspot_grid, hotspot_grids,
 };
 use cairn::summaries::projection::Laea;
 use cairn::summaries::{CountMethod, Decoded, DielPhase, SummaryError};
-use common::{decoded, row, Row};
+use common::{Row, decoded, row};
 
 const CENTRE: (f64, f64) = (10.0, 50.0);
 const CELL_KM: f64 = 5.0;
@@ -162,9 +162,10 @@ fn geojson_is_rfc7946_shaped_and_omits_suppressed_cells() {
         .map(|p| (p[0].as_f64().unwrap(), p[1].as_f64().unwrap()))
         .collect();
     // lon/lat order: longitudes near 10, latitudes near 50.
-    assert!(pts
-        .iter()
-        .all(|p| (p.0 - 10.0).abs() < 0.2 && (p.1 - 50.0).abs() < 0.2));
+    assert!(
+        pts.iter()
+            .all(|p| (p.0 - 10.0).abs() < 0.2 && (p.1 - 50.0).abs() < 0.2)
+    );
     // Counter-clockwise: positive shoelace area.
     let a: f64 = pts
         .windows(2)
@@ -176,11 +177,12 @@ fn geojson_is_rfc7946_shaped_and_omits_suppressed_cells() {
     g.write_csv(&mut csv).unwrap();
     let csv = String::from_utf8(csv).unwrap();
     assert_eq!(csv.lines().count(), 2);
-    assert!(csv
-        .lines()
-        .nth(1)
-        .unwrap()
-        .starts_with("forage,viterbi,UtcDate,5,0,0,3,2,7,25,"));
+    assert!(
+        csv.lines()
+            .nth(1)
+            .unwrap()
+            .starts_with("forage,viterbi,UtcDate,5,0,0,3,2,7,25,")
+    );
     assert!(csv.contains("\"POLYGON(("));
 }
 

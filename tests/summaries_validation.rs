@@ -1,7 +1,7 @@
 mod common;
 
 use cairn::summaries::{Decoded, DielPhase, SummaryError};
-use common::{columns, row, Row};
+use common::{Row, columns, row};
 
 fn base() -> Vec<Row> {
     vec![

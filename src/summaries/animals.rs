@@ -6,7 +6,7 @@
 //! the chosen [`CountMethod`]; the mean step per state is the Viterbi-state mean, or
 //! the probability-weighted mean Σ p_is ℓ_i / Σ p_is for the probability method.
 
-use super::{csv_num, csv_text, CountMethod, Decoded, SummaryError};
+use super::{CountMethod, Decoded, SummaryError, csv_num, csv_text};
 use chrono::DateTime;
 use serde::Serialize;
 use std::io::Write;

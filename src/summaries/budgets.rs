@@ -24,7 +24,7 @@
 //! *Bootstrap Methods and their Application*, §3.8.
 
 use super::rng::SplitMix64;
-use super::{csv_num, csv_text, quantile_sorted, CountMethod, Decoded, DielPhase, SummaryError};
+use super::{CountMethod, Decoded, DielPhase, SummaryError, csv_num, csv_text, quantile_sorted};
 use rayon::prelude::*;
 use serde::Serialize;
 use std::io::Write;

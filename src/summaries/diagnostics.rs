@@ -57,11 +57,7 @@ pub fn inverse_normal_cdf(p: f64) -> f64 {
         let r = r - 5.0;
         horner(&AS241_E, r) / horner(&AS241_F, r)
     };
-    if q < 0.0 {
-        -value
-    } else {
-        value
-    }
+    if q < 0.0 { -value } else { value }
 }
 
 /// Polynomial with coefficients in increasing powers, by Horner's rule.

@@ -37,7 +37,9 @@ pub mod prec {
 #[derive(Debug, thiserror::Error)]
 pub enum SummaryError {
     /// A column has a different number of rows from the `animal` column.
-    #[error("column `{column}` has {found} rows but `animal` has {expected}; all columns of the decoded table must have one row per step")]
+    #[error(
+        "column `{column}` has {found} rows but `animal` has {expected}; all columns of the decoded table must have one row per step"
+    )]
     ColumnLength {
         /// Column name.
         column: &'static str,
@@ -59,7 +61,9 @@ pub enum SummaryError {
         range: &'static str,
     },
     /// A row of local state probabilities does not sum to one.
-    #[error("row {row}: local state probabilities sum to {sum}, not 1 (tolerance {tol}); pass the decoder's normalised probabilities")]
+    #[error(
+        "row {row}: local state probabilities sum to {sum}, not 1 (tolerance {tol}); pass the decoder's normalised probabilities"
+    )]
     ProbabilityRow {
         /// Zero-based row.
         row: usize,
@@ -69,9 +73,7 @@ pub enum SummaryError {
         tol: f64,
     },
     /// Rows of one animal are not contiguous, or times within an animal do not increase.
-    #[error(
-        "row {row}, animal `{animal}`: {problem}; sort the decoded table by animal, then time"
-    )]
+    #[error("row {row}, animal `{animal}`: {problem}; sort the decoded table by animal, then time")]
     Order {
         /// Zero-based row.
         row: usize,
@@ -84,7 +86,9 @@ pub enum SummaryError {
     #[error("the decoded table is empty ({0}); nothing to summarise")]
     Empty(&'static str),
     /// The probability method was asked for but the table carries no probabilities.
-    #[error("local state probabilities were not supplied; use CountMethod::Viterbi or pass the decoder's probabilities")]
+    #[error(
+        "local state probabilities were not supplied; use CountMethod::Viterbi or pass the decoder's probabilities"
+    )]
     ProbabilitiesMissing,
     /// A summary option is invalid.
     #[error("option `{name}`: {problem}")]

@@ -8,11 +8,11 @@
 
 use super::palette::GREY;
 use super::style::Scale;
-use super::{colour, de, render, swatch_legend, Figure, FigureError, FigureOptions, Painter};
-use crate::summaries::budgets::{ActivityBudgets, BudgetTable, Grouping};
+use super::{Figure, FigureError, FigureOptions, Painter, colour, de, render, swatch_legend};
 use crate::summaries::CountMethod;
-use plotters::coord::types::RangedCoordf64;
+use crate::summaries::budgets::{ActivityBudgets, BudgetTable, Grouping};
 use plotters::coord::Shift;
+use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 

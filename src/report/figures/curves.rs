@@ -7,7 +7,7 @@
 //! matrix), laid out in a fixed number of columns.
 
 use super::style::Scale;
-use super::{colour, de, render, swatch_legend, tick, Figure, FigureError, FigureOptions, Painter};
+use super::{Figure, FigureError, FigureOptions, Painter, colour, de, render, swatch_legend, tick};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 

@@ -13,7 +13,7 @@
 
 use super::palette::GREY;
 use super::style::Scale;
-use super::{colour, de, render, swatch_legend, tick, Figure, FigureError, FigureOptions, Painter};
+use super::{Figure, FigureError, FigureOptions, Painter, colour, de, render, swatch_legend, tick};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 

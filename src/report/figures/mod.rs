@@ -44,7 +44,9 @@ pub enum FigureError {
         problem: String,
     },
     /// More states than distinct palette colours.
-    #[error("{0} states, but the colour-blind-safe palette has 8 colours; merge or drop states before plotting")]
+    #[error(
+        "{0} states, but the colour-blind-safe palette has 8 colours; merge or drop states before plotting"
+    )]
     TooManyStates(usize),
     /// The embedded font could not be registered.
     #[error("embedded font {0} could not be loaded")]

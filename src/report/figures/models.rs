@@ -9,7 +9,7 @@
 
 use super::palette::{GREY, LIGHT_GREY};
 use super::style::Scale;
-use super::{colour, de, render, tick, Figure, FigureError, FigureOptions, Painter};
+use super::{Figure, FigureError, FigureOptions, Painter, colour, de, render, tick};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};

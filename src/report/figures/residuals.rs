@@ -13,7 +13,7 @@
 
 use super::palette::{GREY, LIGHT_GREY};
 use super::style::Scale;
-use super::{colour, de, render, tick, Figure, FigureError, FigureOptions, Painter};
+use super::{Figure, FigureError, FigureOptions, Painter, colour, de, render, tick};
 use crate::summaries::diagnostics::StreamDiagnostics;
 use plotters::coord::Shift;
 use plotters::prelude::*;
