@@ -298,3 +298,20 @@ fn unknown_time_zone_is_still_rejected() {
     };
     has(&e, &["fixes.timezone", "Mars/Olympus"]);
 }
+
+#[test]
+fn animal_table_with_a_duplicated_id() {
+    let d = tempfile::tempdir().unwrap();
+    std::fs::write(
+        d.path().join("fixes.csv"),
+        "animal,time,lon,lat\na,2024-01-01 00:00,15,60\n",
+    )
+    .unwrap();
+    std::fs::write(d.path().join("animals.csv"), "animal,sex\na,F\nb,M\na,M\n").unwrap();
+    let path = d.path().join("study.toml");
+    let cov =
+        "[covariates.animals]\nfile = \"animals.csv\"\nid = \"animal\"\ncolumns = [\"sex\"]\n";
+    std::fs::write(&path, format!("{BASE}\n{cov}")).unwrap();
+    let e = Study::load(&path).unwrap_err().to_string();
+    has(&e, &["animals.csv", "data row 3", "\"a\"", "twice"]);
+}

@@ -456,3 +456,56 @@ fn thread_count_changes_no_covariate() {
     assert_eq!(a.covariates.missing, b.covariates.missing);
     assert_eq!(a.covariates.summary, b.covariates.summary);
 }
+
+#[test]
+fn a_raster_without_georeferencing_is_an_error_naming_the_file() {
+    let (d, study_path) = setup();
+    std::fs::copy(
+        "tests/fixtures/rasters/no_georef.tif",
+        d.path().join("depth.tif"),
+    )
+    .unwrap();
+    let study = Study::load(&study_path).unwrap();
+    let e = prepare::run(&study).unwrap_err().to_string();
+    assert!(
+        e.contains("depth.tif") && e.contains("no georeferencing"),
+        "{e}"
+    );
+}
+
+#[test]
+fn the_binary_prints_the_covariate_account_and_writes_the_new_files() {
+    let (d, study_path) = setup();
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(["prepare", study_path.to_str().unwrap()])
+        .output()
+        .unwrap();
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    // Nothing was excluded: missing covariates are reported, not counted as exclusions.
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{stdout}{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    for want in [
+        "covariates: 17 columns",
+        "missing depth",
+        "nodata 1",
+        "layer habitat: class codes in no group: 7 (1740 cells)",
+        "animals missing from the attribute table: a3",
+        "attribute-table ids without steps: ghost",
+        "standardised depth",
+        "standardised mass_kg",
+    ] {
+        assert!(stdout.contains(want), "{want:?} not in\n{stdout}");
+    }
+    for f in [
+        "steps.parquet",
+        "columns.json",
+        "covariate_missing.csv",
+        "prepare_summary.json",
+    ] {
+        assert!(d.path().join("cairn-out").join(f).is_file(), "{f}");
+    }
+}
