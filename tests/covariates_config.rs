@@ -315,3 +315,12 @@ fn animal_table_with_a_duplicated_id() {
     let e = Study::load(&path).unwrap_err().to_string();
     has(&e, &["animals.csv", "data row 3", "\"a\"", "twice"]);
 }
+
+#[test]
+fn class_raster_with_a_value_key() {
+    let cov = RASTER.replace("radius = \"500 m\"", "radius = \"500 m\"\nscale = 0.1");
+    has(
+        &rejected(&cov),
+        &["covariates.raster[0].scale", "not used", "classes"],
+    );
+}

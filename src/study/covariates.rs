@@ -320,6 +320,7 @@ fn resolve_raster(i: usize, r: &RawRaster, root: &Path) -> Result<RasterLayer, S
         "classes" => {
             not_for("unit", r.unit.is_some(), "classes")?;
             not_for("scale", r.scale.is_some(), "classes")?;
+            not_for("label", r.label.is_some(), "classes")?;
             let radius_m = match &r.radius {
                 Some(s) => units::parse_distance(&key("radius"), s)?,
                 None => {
