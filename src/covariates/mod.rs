@@ -213,7 +213,8 @@ pub struct MissingCell {
     pub reason: MissingReason,
 }
 
-/// Mean and standard deviation used to standardise a column.
+/// Mean and standard deviation used to standardise a column, over the steps' non-missing
+/// values (so a per-animal attribute weighs each animal by its number of steps).
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Scaling {
     /// The source column (the standardised one is `<column>_z`).
@@ -845,7 +846,6 @@ fn annotate_layer(
                 }
             }
             timings.raster_lookup_s += t.elapsed().as_secs_f64();
-            let shape = config::window_name(*window);
             let within = match window {
                 crate::geo::focal::Window::Circle => format!("within {radius_m} m (circle)"),
                 crate::geo::focal::Window::Square => {
@@ -869,9 +869,7 @@ fn annotate_layer(
                 values: Values::Float(nodata),
                 unit: "proportion".into(),
                 source: layer.file.clone(),
-                transformation: format!(
-                    "share of cells with centre {within} that are nodata ({shape} window)"
-                ),
+                transformation: format!("share of cells with centre {within} that are nodata"),
             });
             Ok(inside)
         }
