@@ -10,6 +10,7 @@ use std::path::{Path, PathBuf};
 
 use polars::prelude::*;
 
+use crate::covariates::{Annotated, Values};
 use crate::tracks::clean::Track;
 use crate::tracks::exclusions::Exclusion;
 use crate::tracks::metrics::Steps;
@@ -81,6 +82,18 @@ pub fn write_parquet(path: &Path, df: &mut DataFrame) -> Result<(), WriteError> 
             .finish(df)
             .map(|_| ())
             .map_err(|e| e.to_string())
+    })
+}
+
+/// Writes a value as pretty-printed JSON with a final newline, atomically.
+///
+/// # Errors
+/// [`WriteError`] naming `path`.
+pub fn write_json<T: serde::Serialize>(path: &Path, value: &T) -> Result<(), WriteError> {
+    let json = serde_json::to_string_pretty(value).map_err(|e| werr(path, e))?;
+    write_atomic(path, |w| {
+        w.write_all(json.as_bytes()).map_err(|e| e.to_string())?;
+        w.write_all(b"\n").map_err(|e| e.to_string())
     })
 }
 
@@ -239,5 +252,64 @@ pub fn exclusions_frame(ex: &[Exclusion]) -> PolarsResult<DataFrame> {
             "detail".into(),
             ex.iter().map(|e| e.detail.as_str()).collect::<Vec<_>>(),
         ),
+    ])
+}
+
+/// The step table with its covariate columns appended (missing values are nulls).
+///
+/// # Errors
+/// A polars error if the frame cannot be built.
+pub fn annotated_steps_frame(steps: &Steps, cov: &Annotated) -> PolarsResult<DataFrame> {
+    let mut df = steps_frame(steps)?;
+    let mut extra = Vec::with_capacity(cov.columns.len());
+    for c in &cov.columns {
+        let name = c.name.as_str().into();
+        extra.push(match &c.values {
+            Values::Float(v) => Column::new(
+                name,
+                v.iter()
+                    .map(|x| (!x.is_nan()).then_some(*x))
+                    .collect::<Vec<Option<f64>>>(),
+            ),
+            Values::Int(v) => Column::new(name, v.clone()),
+            Values::Labels { levels, codes } => Column::new(
+                name,
+                codes
+                    .iter()
+                    .map(|k| k.map(|k| levels[k as usize].as_str()))
+                    .collect::<Vec<Option<&str>>>(),
+            ),
+        });
+    }
+    df.hstack_mut(&extra)?;
+    Ok(df)
+}
+
+/// The missing-covariate log: animal, time_utc, column, reason, detail.
+///
+/// # Errors
+/// A polars error if the frame cannot be built.
+pub fn missing_frame(steps: &Steps, cov: &Annotated) -> PolarsResult<DataFrame> {
+    let m = &cov.missing;
+    let animal: Vec<&str> = m
+        .iter()
+        .map(|c| steps.animals[steps.animal[c.row] as usize].as_str())
+        .collect();
+    let time: Vec<i64> = m.iter().map(|c| steps.time_us[c.row]).collect();
+    let column: Vec<&str> = m
+        .iter()
+        .map(|c| cov.columns[c.column].name.as_str())
+        .collect();
+    let reason: Vec<&str> = m.iter().map(|c| c.reason.code()).collect();
+    let detail: Vec<String> = m
+        .iter()
+        .map(|c| c.reason.detail(&cov.columns[c.column].source))
+        .collect();
+    DataFrame::new_infer_height(vec![
+        Column::new("animal".into(), animal),
+        utc_column("time_utc", time)?,
+        Column::new("column".into(), column),
+        Column::new("reason".into(), reason),
+        Column::new("detail".into(), detail),
     ])
 }

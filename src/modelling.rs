@@ -241,7 +241,7 @@ pub(crate) fn standardise(
             let n = finite.len() as f64;
             let mean = finite.iter().sum::<f64>() / n;
             let sd = (finite.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
-            if !(sd > 0.0) {
+            if sd.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater) {
                 // A constant column: left as it is, so the engine reports it as constant.
                 continue;
             }
@@ -258,13 +258,16 @@ pub(crate) fn standardise(
     out
 }
 
+/// Design column names, row-major values and the scaling applied.
+type DesignValues = (Vec<String>, Vec<f64>, Vec<CovariateScaling>);
+
 /// The candidate's design on standardised numeric columns: column names, row-major
 /// values (empty without terms) and the scaling used.
 fn design_values(
     path: &Path,
     df: &DataFrame,
     c: &Candidate,
-) -> Result<(Vec<String>, Vec<f64>, Vec<CovariateScaling>), FitStageError> {
+) -> Result<DesignValues, FitStageError> {
     if c.terms.is_empty() {
         return Ok((Vec::new(), Vec::new(), Vec::new()));
     }

@@ -7,7 +7,9 @@
 //! |---|---|
 //! | `fixes_clean.parquet` | cleaned fixes, one row per fix, with source file and row |
 //! | `track_smoothed.parquet` | with `[grid]`: smoothed locations on the regular grid, with standard errors |
-//! | `steps.parquet` | one row per step (see [`crate::tracks::metrics`]); of the smoothed path with `[grid]` |
+//! | `steps.parquet` | one row per step (see [`crate::tracks::metrics`]; of the smoothed path with `[grid]`) with its covariates (see [`crate::covariates`]) |
+//! | `columns.json` | the column dictionary of `steps.parquet` and the standardisation table |
+//! | `covariate_missing.csv` | every missing covariate cell: animal, time, column, reason |
 //! | `exclusions.csv` | every input row that was not kept, with reason |
 //! | `prepare_summary.json` | per-animal counts, spans, intervals, class mix |
 //! | `*.csv` | CSV copies of the Parquet tables when `output.csv = true` or `--csv` |
@@ -16,6 +18,7 @@ use std::collections::BTreeMap;
 
 use serde::Serialize;
 
+use crate::covariates::{self, Annotated, CovariateError, CovariateSummary};
 use crate::io::{self, WriteError};
 use crate::study::Study;
 use crate::tracks::clean::{self, Track};
@@ -34,6 +37,8 @@ pub struct Prepared {
     pub smoothed: Option<Smoothed>,
     /// Step table (of the smoothed paths when there are any, else of the cleaned fixes).
     pub steps: Steps,
+    /// Covariate columns of the step table.
+    pub covariates: Annotated,
     /// Every excluded row: ingest first (file order), then cleaning (animal order).
     pub exclusions: Vec<Exclusion>,
     /// The account of it all.
@@ -87,6 +92,9 @@ pub struct Summary {
     pub animals: Vec<AnimalSummary>,
     /// The smoother's record per animal, when `[grid]` is set.
     pub smoother: Option<Vec<SmootherRecord>>,
+    /// Covariate columns, missing cells by reason, unknown class codes, unmatched ids,
+    /// standardisation.
+    pub covariates: CovariateSummary,
 }
 
 impl Summary {
@@ -107,11 +115,23 @@ impl Summary {
 /// Label used for rows without an animal id.
 pub const NO_ID: &str = "(no id)";
 
-/// Runs ingest, cleaning and step computation.
+/// Why the prepare stage stopped.
+#[derive(Debug, thiserror::Error)]
+pub enum PrepareError {
+    /// An input file is unusable as a whole.
+    #[error(transparent)]
+    Ingest(#[from] IngestError),
+    /// A covariate layer or setting cannot be applied to these tracks.
+    #[error(transparent)]
+    Covariates(#[from] CovariateError),
+}
+
+/// Runs ingest, cleaning, step computation and covariate annotation.
 ///
 /// # Errors
-/// [`IngestError`] when an input file is unusable as a whole.
-pub fn run(study: &Study) -> Result<Prepared, IngestError> {
+/// [`PrepareError`] when an input file is unusable as a whole, or a covariate layer
+/// cannot be read or applied.
+pub fn run(study: &Study) -> Result<Prepared, PrepareError> {
     let mut ingested = ingest::read_fixes(study)?;
     let files: Vec<String> = study
         .inputs()
@@ -138,12 +158,21 @@ pub fn run(study: &Study) -> Result<Prepared, IngestError> {
         Some(s) => metrics::steps_of_paths(&s.paths),
         None => metrics::steps(&cleaned.tracks, study.gap_s()),
     };
-    let mut summary = summarise(study, file_rows, &cleaned.tracks, &steps, &exclusions);
+    let annotated = covariates::annotate(&steps, study.covariates(), study.timezone())?;
+    let mut summary = summarise(
+        study,
+        file_rows,
+        &cleaned.tracks,
+        &steps,
+        &exclusions,
+        annotated.summary.clone(),
+    );
     summary.smoother = smoothed.as_ref().map(|s| s.records.clone());
     Ok(Prepared {
         tracks: cleaned.tracks,
         smoothed,
         steps,
+        covariates: annotated,
         exclusions,
         summary,
     })
@@ -168,6 +197,7 @@ fn summarise(
     tracks: &[Track],
     steps: &Steps,
     exclusions: &[Exclusion],
+    covariates: CovariateSummary,
 ) -> Summary {
     let mut animals: BTreeMap<String, AnimalSummary> = BTreeMap::new();
     let blank = |name: &str| AnimalSummary {
@@ -243,6 +273,7 @@ fn summarise(
         excluded_by_reason: by_reason,
         animals,
         smoother: None,
+        covariates,
     }
 }
 
@@ -269,7 +300,10 @@ pub fn write(study: &Study, p: &Prepared, csv: bool) -> Result<Written, WriteErr
         reason: e.to_string(),
     };
     let mut fixes = io::fixes_frame(&p.tracks, &files).map_err(|e| frame_err("fixes_clean", e))?;
-    let mut steps = io::steps_frame(&p.steps).map_err(|e| frame_err("steps", e))?;
+    let mut steps =
+        io::annotated_steps_frame(&p.steps, &p.covariates).map_err(|e| frame_err("steps", e))?;
+    let mut missing = io::missing_frame(&p.steps, &p.covariates)
+        .map_err(|e| frame_err("covariate_missing", e))?;
     let mut excl = io::exclusions_frame(&p.exclusions).map_err(|e| frame_err("exclusions", e))?;
     let mut written = Vec::new();
     let mut put = |name: &str| {
@@ -286,6 +320,7 @@ pub fn write(study: &Study, p: &Prepared, csv: bool) -> Result<Written, WriteErr
     if let Some(df) = smoothed.as_mut() {
         io::write_parquet(&put("track_smoothed.parquet"), df)?;
     }
+    io::write_csv(&put("covariate_missing.csv"), &mut missing)?;
     if csv {
         io::write_csv(&put("fixes_clean.csv"), &mut fixes)?;
         io::write_csv(&put("steps.csv"), &mut steps)?;
@@ -293,14 +328,10 @@ pub fn write(study: &Study, p: &Prepared, csv: bool) -> Result<Written, WriteErr
             io::write_csv(&put("track_smoothed.csv"), df)?;
         }
     }
-    let json = serde_json::to_string_pretty(&p.summary).map_err(|e| WriteError {
-        path: out.join("prepare_summary.json"),
-        reason: e.to_string(),
-    })?;
-    io::write_atomic(&put("prepare_summary.json"), |w| {
-        use std::io::Write;
-        w.write_all(json.as_bytes()).map_err(|e| e.to_string())?;
-        w.write_all(b"\n").map_err(|e| e.to_string())
-    })?;
+    io::write_json(
+        &put("columns.json"),
+        &covariates::dictionary::dictionary(&p.covariates),
+    )?;
+    io::write_json(&put("prepare_summary.json"), &p.summary)?;
     Ok(Written { files: written })
 }

@@ -42,8 +42,9 @@ pub enum Command {
         /// The study file (study.toml).
         study: PathBuf,
     },
-    /// Ingest, clean and measure tracks; write the cleaned fixes, the step table, the
-    /// exclusions log and a JSON summary into the study's output folder.
+    /// Ingest, clean and measure tracks and annotate covariates; write the cleaned fixes,
+    /// the step table with covariates, the column dictionary, the exclusions and
+    /// missing-covariate logs and a JSON summary into the study's output folder.
     Prepare {
         /// The study file (study.toml).
         study: PathBuf,
@@ -328,5 +329,56 @@ pub fn render_check(study: &Study, s: &Summary) -> String {
             let _ = writeln!(o, "  {r:<24} {n}");
         }
     }
+    render_covariates(&mut o, &s.covariates);
     o
+}
+
+fn render_covariates(o: &mut String, c: &crate::covariates::CovariateSummary) {
+    let hour = match c.hour {
+        crate::covariates::HourKind::Clock => "clock",
+        crate::covariates::HourKind::Solar => "solar",
+    };
+    let _ = writeln!(
+        o,
+        "\ncovariates: {} columns   hour: {hour}   seasons: {}   missing cells: {}",
+        c.columns.len(),
+        c.seasons,
+        c.missing_total()
+    );
+    for (col, reasons) in &c.missing {
+        let r: Vec<String> = reasons.iter().map(|(k, n)| format!("{k} {n}")).collect();
+        let _ = writeln!(o, "  missing {col:<24} {}", r.join(", "));
+    }
+    for (layer, codes) in &c.unknown_class_codes {
+        let r: Vec<String> = codes
+            .iter()
+            .map(|(k, n)| format!("{k} ({n} cells)"))
+            .collect();
+        let _ = writeln!(
+            o,
+            "  layer {layer}: class codes in no group: {}",
+            r.join(", ")
+        );
+    }
+    if !c.animals_without_attributes.is_empty() {
+        let _ = writeln!(
+            o,
+            "  animals missing from the attribute table: {}",
+            c.animals_without_attributes.join(", ")
+        );
+    }
+    if !c.attribute_ids_without_steps.is_empty() {
+        let _ = writeln!(
+            o,
+            "  attribute-table ids without steps: {}",
+            c.attribute_ids_without_steps.join(", ")
+        );
+    }
+    for s in &c.standardisation {
+        let _ = writeln!(
+            o,
+            "  standardised {:<19} mean {:.6}  sd {:.6}  (n = {})",
+            s.column, s.mean, s.sd, s.n
+        );
+    }
 }

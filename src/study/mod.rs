@@ -6,8 +6,10 @@
 //! headers, every unit and every enumerated choice, and yields the validated [`Study`].
 //! Nothing downstream re-validates: a `Study` value is proof that the settings are usable.
 //!
-//! Paths in the study file are relative to the folder that holds it.
+//! Paths in the study file are relative to the folder that holds it. The `[covariates]`
+//! section is checked in its own file (`covariates.rs`) by the same `resolve` step.
 
+mod covariates;
 pub mod model;
 mod raw;
 pub(crate) mod units;
@@ -18,6 +20,7 @@ use std::path::{Path, PathBuf};
 
 use chrono_tz::Tz;
 
+use crate::covariates::CovariateConfig;
 use crate::tracks::class::LocClass;
 
 /// The commented template that `cairn init` writes; also the reference for every key.
@@ -179,6 +182,7 @@ pub struct Study {
     grid_settings: Option<crate::tracks::regular::RegularSettings>,
     model: Option<model::ModelSettings>,
     write_csv: bool,
+    covariates: CovariateConfig,
 }
 
 fn serialize_tz<S: serde::Serializer>(tz: &Tz, s: S) -> Result<S::Ok, S::Error> {
@@ -258,6 +262,10 @@ impl Study {
     /// Whether tables are also written as CSV.
     pub fn write_csv(&self) -> bool {
         self.write_csv
+    }
+    /// The validated `[covariates]` section (sun and calendar defaults when absent).
+    pub fn covariates(&self) -> &CovariateConfig {
+        &self.covariates
     }
 }
 
@@ -435,6 +443,7 @@ fn resolve(raw: raw::RawStudy, source: &Path, root: &Path) -> Result<Study, Stud
     };
 
     let model = raw.model.as_ref().map(model::resolve).transpose()?;
+    let covariates = covariates::resolve(raw.covariates, root)?;
 
     Ok(Study {
         name,
@@ -452,6 +461,7 @@ fn resolve(raw: raw::RawStudy, source: &Path, root: &Path) -> Result<Study, Stud
         grid_settings,
         model,
         write_csv: raw.output.csv,
+        covariates,
     })
 }
 

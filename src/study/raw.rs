@@ -4,6 +4,8 @@
 //! `cairn init`) and in the README. Unknown keys are rejected so that a typo
 //! (`max_sped`) is an error, not a silently ignored setting.
 
+use std::collections::BTreeMap;
+
 use serde::Deserialize;
 
 #[derive(Debug, Deserialize)]
@@ -21,6 +23,8 @@ pub(crate) struct RawStudy {
     pub(crate) model: Option<RawModel>,
     #[serde(default)]
     pub(crate) output: RawOutput,
+    #[serde(default)]
+    pub(crate) covariates: Option<RawCovariates>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -176,4 +180,80 @@ pub(crate) struct RawCandidate {
     pub(crate) states: Option<usize>,
     #[serde(default)]
     pub(crate) covariates: Vec<String>,
+}
+
+/// `[covariates]`: what to join to every step.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct RawCovariates {
+    #[serde(default)]
+    pub(crate) hour: Option<String>,
+    #[serde(default)]
+    pub(crate) diel: Option<RawDiel>,
+    #[serde(default)]
+    pub(crate) season: Option<Vec<RawSeason>>,
+    #[serde(default)]
+    pub(crate) raster: Vec<RawRaster>,
+    #[serde(default)]
+    pub(crate) animals: Option<RawAnimals>,
+    #[serde(default)]
+    pub(crate) standardise: Option<RawStandardise>,
+}
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct RawDiel {
+    #[serde(default)]
+    pub(crate) day: Option<String>,
+    #[serde(default)]
+    pub(crate) civil: Option<String>,
+    #[serde(default)]
+    pub(crate) nautical: Option<String>,
+    #[serde(default)]
+    pub(crate) astronomical: Option<String>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct RawSeason {
+    pub(crate) name: String,
+    pub(crate) from: String,
+    pub(crate) to: String,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct RawRaster {
+    pub(crate) name: String,
+    pub(crate) file: String,
+    pub(crate) kind: String,
+    #[serde(default)]
+    pub(crate) radius: Option<String>,
+    #[serde(default)]
+    pub(crate) window: Option<String>,
+    #[serde(default)]
+    pub(crate) classes: Option<BTreeMap<String, Vec<i64>>>,
+    #[serde(default)]
+    pub(crate) unit: Option<String>,
+    #[serde(default)]
+    pub(crate) scale: Option<f64>,
+    #[serde(default)]
+    pub(crate) label: Option<String>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct RawAnimals {
+    pub(crate) file: String,
+    pub(crate) id: String,
+    #[serde(default)]
+    pub(crate) columns: Vec<String>,
+}
+
+/// `standardise = true` (every numeric covariate) or a list of column names.
+#[derive(Debug, Deserialize)]
+#[serde(untagged)]
+pub(crate) enum RawStandardise {
+    All(bool),
+    Columns(Vec<String>),
 }
