@@ -261,6 +261,22 @@ pub(crate) fn standardise(
 /// Design column names, row-major values and the scaling applied.
 type DesignValues = (Vec<String>, Vec<f64>, Vec<CovariateScaling>);
 
+/// Parameters of a model without covariates, extended with zero coefficients for `p`
+/// covariates (transition rows are `[intercept, covariates…]` per off-diagonal pair).
+fn with_zero_covariates(base: &crate::hmm::Params, n: usize, p: usize) -> crate::hmm::Params {
+    let rows = n * (n - 1);
+    let mut beta = Vec::with_capacity(rows * (1 + p));
+    for r in 0..rows {
+        beta.push(base.beta[r]);
+        beta.extend(std::iter::repeat_n(0.0, p));
+    }
+    crate::hmm::Params {
+        streams: base.streams.clone(),
+        beta,
+        delta: base.delta.clone(),
+    }
+}
+
 /// The candidate's design on standardised numeric columns: column names, row-major
 /// values (empty without terms) and the scaling used.
 fn design_values(
@@ -360,8 +376,16 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
     let angle = f64_column(&path, &df, "turn_rad")?;
     let bounds = series_bounds(&animal, &segment);
 
-    let mut fits = Vec::with_capacity(settings.candidates.len());
-    for c in &settings.candidates {
+    // Candidates without covariates are fitted first: their estimates, with every
+    // covariate coefficient at zero, are the first start of the covariate candidates with
+    // the same number of states. A nested model then starts where the simpler one ended,
+    // so it cannot end below it for want of a good start.
+    let mut order: Vec<usize> = (0..settings.candidates.len()).collect();
+    order.sort_by_key(|&i| !settings.candidates[i].terms.is_empty());
+    let mut slots: Vec<Option<CandidateFit>> = settings.candidates.iter().map(|_| None).collect();
+    let mut bases: BTreeMap<usize, crate::hmm::Params> = BTreeMap::new();
+    for i in order {
+        let c = &settings.candidates[i];
         progress(&format!(
             "fitting `{}`: {} states, {} covariate term(s), {} starts",
             c.name,
@@ -371,6 +395,9 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
         ));
         let (covariates, values, scaling) = design_values(&path, &df, c)?;
         let spec = spec_of(settings, c, &covariates);
+        let start = bases
+            .get(&c.n_states)
+            .map(|b| with_zero_covariates(b, c.n_states, covariates.len()));
         let result = data_of(settings, &bounds, &step, &angle, &covariates, &values)
             .and_then(|data| {
                 fit(
@@ -379,6 +406,7 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
                     &FitOptions {
                         n_starts: settings.starts,
                         seed: settings.seed,
+                        start,
                         ..FitOptions::default()
                     },
                 )
@@ -388,15 +416,22 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
                 m
             })
             .map_err(|e| e.to_string());
-        if let Err(e) = &result {
-            progress(&format!("  `{}` could not be fitted: {e}", c.name));
+        match &result {
+            Err(e) => progress(&format!("  `{}` could not be fitted: {e}", c.name)),
+            Ok(m) if c.terms.is_empty() => {
+                bases
+                    .entry(c.n_states)
+                    .or_insert_with(|| m.params().clone());
+            }
+            Ok(_) => {}
         }
-        fits.push(CandidateFit {
+        slots[i] = Some(CandidateFit {
             candidate: c.clone(),
             covariates,
             result,
         });
     }
+    let fits: Vec<CandidateFit> = slots.into_iter().flatten().collect();
 
     let ok: Vec<(&str, &FittedModel)> = fits
         .iter()

@@ -155,7 +155,7 @@ fn prepare_fit_simulate_end_to_end() {
     assert!(out.contains("selected: no covariates"), "{out}");
     let o = d.path().join("cairn-out");
     let cmp = std::fs::read_to_string(o.join("model_comparison.csv")).unwrap();
-    assert_eq!(cmp.lines().count(), 3, "{cmp}");
+    assert_eq!(cmp.lines().count(), 4, "{cmp}");
     assert!(
         cmp.lines().nth(1).unwrap().starts_with("no covariates,2,"),
         "{cmp}"
@@ -177,6 +177,16 @@ fn prepare_fit_simulate_end_to_end() {
         assert!((x.unwrap() + y.unwrap() - 1.0).abs() < 1e-9);
     }
     assert!(o.join("models/no-covariates.json").is_file());
+    // The covariate model starts from the model without covariates, so its optimum is at
+    // least as high (it nests it).
+    let loglik = |name: &str| -> f64 {
+        let line = cmp.lines().find(|l| l.starts_with(name)).unwrap();
+        line.split(',').nth(4).unwrap().parse().unwrap()
+    };
+    assert!(
+        loglik("time of day") >= loglik("no covariates") - 1e-6,
+        "{cmp}"
+    );
     let (code, out, err) = cairn(&["simulate", &study, "--seed", "3"]);
     assert_eq!(code, 0, "{out}{err}");
     let sim = std::fs::read_to_string(o.join("simulated_no-covariates.csv")).unwrap();

@@ -39,18 +39,18 @@ fn bad_model_settings_are_rejected_with_their_key() {
         (
             "name = \"one state\"",
             "name = \"no covariates\"",
-            "model.candidate[1]",
+            "model.candidate[2]",
         ),
-        ("states = 1", "states = 9", "model.candidate[1].states"),
+        ("states = 1", "states = 9", "model.candidate[2].states"),
         (
             "states = 1",
             "covariates = [\"cyclic(hour)\"]",
-            "model.candidate[1].covariates",
+            "model.candidate[2].covariates",
         ),
         (
             "states = 1",
             "covariates = [\"depth + kelp\"]",
-            "model.candidate[1].covariates",
+            "model.candidate[2].covariates",
         ),
     ] {
         let text = base.replace(from, to);
