@@ -1,5 +1,7 @@
-//! Ingest + clean + steps on 10^6 synthetic fixes (100 animals × 10 000), from CSV and from
-//! Parquet. Prints fixes per second and peak memory (VmHWM); asserts nothing.
+//! Ingest + clean (speed–distance–angle filter) + steps on 10^6 synthetic fixes
+//! (100 animals × 10 000), from CSV and from Parquet, each stage timed. Prints fixes per
+//! second and peak memory (VmHWM); asserts nothing. (Covariates and smoothing have their
+//! own benches.)
 //!
 //! Each measurement runs in a child process of this binary so that its peak memory is its
 //! own. Run: `cargo bench --bench ingest`.
