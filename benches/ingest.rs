@@ -79,24 +79,28 @@ fn study(dir: &Path, file: &str) -> PathBuf {
 }
 
 fn child(study_path: &Path) {
+    use cairn::tracks::{clean, ingest, metrics};
     let t0 = Instant::now();
     let s = cairn::study::Study::load(study_path).unwrap();
-    let p = cairn::prepare::run(&s).unwrap();
+    let ingested = ingest::read_fixes(&s).unwrap();
+    let t_ingest = t0.elapsed().as_secs_f64();
+    let n: usize = ingested.rows_per_file.iter().sum();
+    let cleaned = clean::clean(ingested, &clean::Labels::from_study(&s), s.speed_filter());
+    let t_clean = t0.elapsed().as_secs_f64();
+    let steps = metrics::steps(&cleaned.tracks, s.gap_s());
     let secs = t0.elapsed().as_secs_f64();
-    let n = p.summary.rows_read;
+    let name = study_path
+        .file_stem()
+        .unwrap()
+        .to_string_lossy()
+        .into_owned();
     println!(
-        "{:<8} {:>9} fixes  {:>7.3} s  {:>10.0} fixes/s  steps {:>8}  peak {:>7.1} MiB",
-        study_path
-            .file_stem()
-            .unwrap()
-            .to_string_lossy()
-            .split('.')
-            .next()
-            .unwrap(),
-        n,
-        secs,
+        "{name:<8} {n:>9} fixes  ingest {t_ingest:>6.3} s  clean {:>6.3} s  steps {:>6.3} s  \
+         total {secs:>6.3} s  {:>9.0} fixes/s  steps {:>8}  peak {:>7.1} MiB",
+        t_clean - t_ingest,
+        secs - t_clean,
         n as f64 / secs,
-        p.steps.len(),
+        steps.len(),
         peak_rss_mib()
     );
 }
