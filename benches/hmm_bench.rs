@@ -84,9 +84,9 @@ fn main() {
             }
         })
         .collect();
-    let sim = model.simulate(&designs, 2).expect("simulate");
+    let drawn = model.simulate(&designs, 2).expect("simulate");
     drop(designs);
-    let obj = Objective::new(&spec, &sim.data).expect("valid data");
+    let obj = Objective::new(&spec, &drawn.data).expect("valid data");
     let n = obj.n_steps() as f64;
     let th = model.working().to_vec();
     // machine calibration: the cost of one libm exp() here and now (the forward pass

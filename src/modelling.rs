@@ -824,7 +824,7 @@ pub fn simulate(
             covariates: values[a * p..b * p].to_vec(),
         })
         .collect();
-    let sim = fitted
+    let drawn = fitted
         .model()
         .simulate(&designs, seed)
         .map_err(|source| FitStageError::Model {
@@ -836,7 +836,7 @@ pub fn simulate(
     let mut state = Vec::new();
     let mut step = Vec::new();
     let mut angle = Vec::new();
-    for (s, states) in sim.data.series().iter().zip(&sim.states) {
+    for (s, states) in drawn.data.series().iter().zip(&drawn.states) {
         for (k, &st) in states.iter().enumerate() {
             series.push(s.id().to_string());
             t.push(k as u32 + 1);

@@ -257,8 +257,8 @@ fn gradient_matches_finite_differences_for_every_family() {
         ] {
             let (spec, params) = spec_for(family, initial);
             let model = Model::new(&spec, params).unwrap();
-            let sim = model.simulate(&designs(3, 80, 1, 7), 11).unwrap();
-            let data = with_missing(&sim.data);
+            let drawn = model.simulate(&designs(3, 80, 1, 7), 11).unwrap();
+            let data = with_missing(&drawn.data);
             let obj = Objective::new(&spec, &data).unwrap();
             // evaluate away from the truth so that the gradient is not ~0
             let mut rng = ChaCha8Rng::seed_from_u64(3);
@@ -344,8 +344,8 @@ fn transition_rows_sum_to_one() {
 fn million_step_series_has_finite_loglik() {
     let (spec, params) = model3(InitialDistribution::Stationary);
     let model = Model::new(&spec, params).unwrap();
-    let sim = model.simulate(&designs(1, 1_000_000, 2, 5), 9).unwrap();
-    let ll = model.log_likelihood(&sim.data).unwrap();
+    let drawn = model.simulate(&designs(1, 1_000_000, 2, 5), 9).unwrap();
+    let ll = model.log_likelihood(&drawn.data).unwrap();
     assert!(ll.is_finite(), "{ll}");
     assert!(ll < 0.0);
 }
@@ -355,8 +355,8 @@ fn million_step_series_has_finite_loglik() {
 fn thread_count_does_not_change_results() {
     let (spec, params) = model3(InitialDistribution::Estimated);
     let model = Model::new(&spec, params).unwrap();
-    let sim = model.simulate(&designs(9, 500, 2, 1), 2).unwrap();
-    let obj = Objective::new(&spec, &sim.data).unwrap();
+    let drawn = model.simulate(&designs(9, 500, 2, 1), 2).unwrap();
+    let obj = Objective::new(&spec, &drawn.data).unwrap();
     let th = model.working().to_vec();
     let run = |threads: usize| {
         let pool = rayon::ThreadPoolBuilder::new()
@@ -382,16 +382,16 @@ fn thread_count_does_not_change_results() {
 fn reordering_series_changes_only_rounding() {
     let (spec, params) = model3(InitialDistribution::Stationary);
     let model = Model::new(&spec, params).unwrap();
-    let sim = model.simulate(&designs(5, 200, 2, 3), 4).unwrap();
-    let mut rev: Vec<Series> = sim.data.series().to_vec();
+    let drawn = model.simulate(&designs(5, 200, 2, 3), 4).unwrap();
+    let mut rev: Vec<Series> = drawn.data.series().to_vec();
     rev.reverse();
     let data2 = Data::new(
-        sim.data.stream_names().to_vec(),
-        sim.data.covariate_names().to_vec(),
+        drawn.data.stream_names().to_vec(),
+        drawn.data.covariate_names().to_vec(),
         rev,
     )
     .unwrap();
-    let a = model.log_likelihood(&sim.data).unwrap();
+    let a = model.log_likelihood(&drawn.data).unwrap();
     let b = model.log_likelihood(&data2).unwrap();
     assert!((a - b).abs() < 1e-9 * a.abs());
 }
@@ -403,8 +403,8 @@ fn reordering_series_changes_only_rounding() {
 fn scaled_and_log_space_forward_agree() {
     let (spec, params) = model3(InitialDistribution::Stationary);
     let model = Model::new(&spec, params).unwrap();
-    let sim = model.simulate(&designs(3, 3000, 2, 21), 22).unwrap();
-    let data = with_missing(&sim.data);
+    let drawn = model.simulate(&designs(3, 3000, 2, 21), 22).unwrap();
+    let data = with_missing(&drawn.data);
     let p = model.params().clone();
     let n = 3;
     let mut total = 0.0;

@@ -81,14 +81,14 @@ fn wrap(x: f64) -> f64 {
 fn simulate_then_fit_recovers_truth_within_intervals() {
     let (spec, params) = truth();
     let model = Model::new(&spec, params).unwrap();
-    let sim = model.simulate(&designs(20, 2000, 1), 2).unwrap();
+    let drawn = model.simulate(&designs(20, 2000, 1), 2).unwrap();
     let t0 = Instant::now();
     let opts = FitOptions {
         n_starts: 3,
         seed: 5,
         ..FitOptions::default()
     };
-    let f = fit(&spec, &sim.data, &opts).unwrap();
+    let f = fit(&spec, &drawn.data, &opts).unwrap();
     eprintln!(
         "recovery fit: {:.2} s, {:?}",
         t0.elapsed().as_secs_f64(),
@@ -169,8 +169,8 @@ fn simulate_then_fit_recovers_truth_within_intervals() {
 fn random_starts_really_restart() {
     let (spec, params) = truth();
     let model = Model::new(&spec, params).unwrap();
-    let sim = model.simulate(&designs(2, 300, 3), 4).unwrap();
-    let obj = Objective::new(&spec, &sim.data).unwrap();
+    let drawn = model.simulate(&designs(2, 300, 3), 4).unwrap();
+    let obj = Objective::new(&spec, &drawn.data).unwrap();
     let mut rng = ChaCha8Rng::seed_from_u64(1);
     let s0 = obj.start_values(None);
     let s1 = obj.start_values(Some(&mut rng));
@@ -199,7 +199,7 @@ fn singular_hessian_names_the_culprits() {
         delta: Some(vec![0.5, 0.5]),
     };
     let m = Model::new(&spec1, p1).unwrap();
-    let sim = m
+    let drawn = m
         .simulate(
             &designs(3, 400, 8)
                 .iter()
@@ -213,7 +213,7 @@ fn singular_hessian_names_the_culprits() {
         )
         .unwrap();
     // add a second covariate b = 2a
-    let series: Vec<Series> = sim
+    let series: Vec<Series> = drawn
         .data
         .series()
         .iter()
@@ -264,8 +264,8 @@ fn singular_hessian_names_the_culprits() {
 fn pseudo_residuals_of_true_model_are_standard_normal() {
     let (spec, params) = truth();
     let model = Model::new(&spec, params.clone()).unwrap();
-    let sim = model.simulate(&designs(2, 2500, 9), 10).unwrap();
-    let res = model.pseudo_residuals(&sim.data).unwrap();
+    let drawn = model.simulate(&designs(2, 2500, 9), 10).unwrap();
+    let res = model.pseudo_residuals(&drawn.data).unwrap();
     for k in 0..2 {
         let r: Vec<f64> = res
             .iter()
@@ -285,7 +285,7 @@ fn pseudo_residuals_of_true_model_are_standard_normal() {
     }
     let wm = Model::new(&spec, wrong).unwrap();
     let r: Vec<f64> = wm
-        .pseudo_residuals(&sim.data)
+        .pseudo_residuals(&drawn.data)
         .unwrap()
         .iter()
         .flat_map(|s| s.streams[0].clone())
@@ -318,7 +318,7 @@ fn comparison_table_ranks_models() {
             covariates: vec![],
         })
         .collect();
-    let sim = m.simulate(&d, 12).unwrap();
+    let drawn = m.simulate(&d, 12).unwrap();
     let opts = FitOptions {
         n_starts: 2,
         hessian: false,
@@ -329,11 +329,11 @@ fn comparison_table_ranks_models() {
             n_states: 1,
             ..spec2.clone()
         },
-        &sim.data,
+        &drawn.data,
         &opts,
     )
     .unwrap();
-    let f2 = fit(&spec2, &sim.data, &opts).unwrap();
+    let f2 = fit(&spec2, &drawn.data, &opts).unwrap();
     let table = compare(&[("one state", &f1), ("two states", &f2)]);
     assert_eq!(table[0].name, "two states");
     assert_eq!(table[0].delta_aic, 0.0);

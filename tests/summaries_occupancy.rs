@@ -49,10 +49,10 @@ fn fitted(series: usize, len: usize) -> (cairn::hmm::FittedModel, BTreeMap<Strin
             covariates: temp[s * len..(s + 1) * len].to_vec(),
         })
         .collect();
-    let sim = truth.simulate(&designs, 7).unwrap();
+    let drawn = truth.simulate(&designs, 7).unwrap();
     let f = fit(
         &spec(),
-        &sim.data,
+        &drawn.data,
         &FitOptions {
             n_starts: 2,
             seed: 3,
