@@ -42,9 +42,10 @@ pub enum Command {
         /// The study file (study.toml).
         study: PathBuf,
     },
-    /// Ingest, clean and measure tracks and annotate covariates; write the cleaned fixes,
-    /// the step table with covariates, the column dictionary, the exclusions and
-    /// missing-covariate logs and a JSON summary into the study's output folder.
+    /// Ingest and clean fixes, smooth tracks onto a regular grid (with `[grid]`), measure
+    /// steps and annotate covariates; write the cleaned fixes, the smoothed track, the step
+    /// table with covariates, the column dictionary, the exclusions and missing-covariate
+    /// logs and a JSON summary into the study's output folder.
     Prepare {
         /// The study file (study.toml).
         study: PathBuf,
