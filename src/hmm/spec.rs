@@ -261,49 +261,40 @@ impl ValidSpec {
 
     /// Names of the working parameters, in the layout order (see the module docs).
     pub fn working_names(&self) -> Vec<String> {
-        let n = self.n_states();
-        let mut names = Vec::with_capacity(self.n_params);
-        for s in &self.spec.streams {
-            for j in 0..n {
-                for w in s.family.working_names() {
-                    names.push(format!("{}: {} [state {}]", s.name, w, j + 1));
-                }
-            }
-            if s.zero_mass {
-                for j in 0..n {
-                    names.push(format!("{}: logit(zero mass) [state {}]", s.name, j + 1));
-                }
-            }
-        }
-        for i in 0..n {
-            for j in (0..n).filter(|&j| j != i) {
-                names.push(format!("beta {}->{}: intercept", i + 1, j + 1));
-                for c in &self.spec.covariates {
-                    names.push(format!("beta {}->{}: {}", i + 1, j + 1, c));
-                }
-            }
-        }
-        if self.delta_offset.is_some() {
-            for k in 1..n {
-                names.push(format!("initial: log(delta {}/delta 1)", k + 1));
-            }
-        }
-        names
+        let initial = (1..self.n_states())
+            .map(|k| format!("initial: log(delta {}/delta 1)", k + 1))
+            .collect();
+        self.parameter_names(Family::working_names, "logit(zero mass)", initial)
     }
 
     /// Names of the natural parameters in the order of [`ValidSpec::natural_vector`].
     pub fn natural_names(&self) -> Vec<String> {
+        let initial = (0..self.n_states())
+            .map(|k| format!("initial: delta {}", k + 1))
+            .collect();
+        self.parameter_names(Family::param_names, "zero mass", initial)
+    }
+
+    /// Parameter names in layout order: per stream the family's parameters per state and
+    /// the zero masses, then the transition coefficients, then (when estimated) the
+    /// initial distribution, named by `initial`.
+    fn parameter_names(
+        &self,
+        family_names: fn(Family) -> &'static [&'static str],
+        zero_mass: &str,
+        initial: Vec<String>,
+    ) -> Vec<String> {
         let n = self.n_states();
-        let mut names = Vec::new();
+        let mut names = Vec::with_capacity(self.n_params);
         for s in &self.spec.streams {
             for j in 0..n {
-                for w in s.family.param_names() {
+                for w in family_names(s.family) {
                     names.push(format!("{}: {} [state {}]", s.name, w, j + 1));
                 }
             }
             if s.zero_mass {
                 for j in 0..n {
-                    names.push(format!("{}: zero mass [state {}]", s.name, j + 1));
+                    names.push(format!("{}: {zero_mass} [state {}]", s.name, j + 1));
                 }
             }
         }
@@ -316,9 +307,7 @@ impl ValidSpec {
             }
         }
         if self.delta_offset.is_some() {
-            for k in 0..n {
-                names.push(format!("initial: delta {}", k + 1));
-            }
+            names.extend(initial);
         }
         names
     }
