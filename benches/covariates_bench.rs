@@ -19,25 +19,13 @@ use cairn::geo::proj::Projection;
 use cairn::tracks::class::LocClass;
 use cairn::tracks::metrics::Steps;
 
+#[path = "../tests/support/bench_landscape.rs"]
+mod bench_landscape;
+use bench_landscape::{Rng, load_average, patchy_classes};
+
 #[path = "../tests/support/geotiff_writer.rs"]
 mod geotiff_writer;
 use geotiff_writer::{U8GeoTiff, write_f32_geotiff, write_u8_geotiff};
-
-struct Rng(u64);
-impl Rng {
-    fn next(&mut self) -> f64 {
-        self.0 ^= self.0 >> 12;
-        self.0 ^= self.0 << 25;
-        self.0 ^= self.0 >> 27;
-        (self.0.wrapping_mul(0x2545_F491_4F6C_DD1D) >> 11) as f64 / (1u64 << 53) as f64
-    }
-}
-
-fn load_average() -> String {
-    std::fs::read_to_string("/proc/loadavg")
-        .map(|s| s.split_whitespace().take(3).collect::<Vec<_>>().join(" "))
-        .unwrap_or_else(|_| "unknown".into())
-}
 
 fn main() {
     let (animals, per_animal) = (1_000usize, 1_000usize);
@@ -55,16 +43,7 @@ fn main() {
     // Patchy 6-class landscape (classes in 10-cell blocks plus noise; 255 = nodata),
     // and a smooth bathymetry with a nodata "island".
     let mut rng = Rng(2024);
-    let classes: Vec<u8> = (0..side * side)
-        .map(|i| {
-            let (c, r) = (i % side, i / side);
-            if rng.next() < 0.01 {
-                255
-            } else {
-                (((c / 10) * 7 + (r / 10) * 3 + (rng.next() < 0.2) as usize) % 6) as u8
-            }
-        })
-        .collect();
+    let classes = patchy_classes(side, &mut rng);
     let spec = U8GeoTiff {
         width: side as u32,
         height: side as u32,

@@ -16,28 +16,16 @@ use cairn::geo::raster::{GeoTransform, Raster, RasterCrs, RasterData};
 use cairn::geo::sun::{DielThresholds, annotate_fixes};
 use chrono::{Duration, TimeZone, Utc};
 
+#[path = "../tests/support/bench_landscape.rs"]
+mod bench_landscape;
+use bench_landscape::{Rng, load_average, patchy_classes};
+
 #[path = "../tests/support/geotiff_writer.rs"]
 mod geotiff_writer;
 use geotiff_writer::{U8GeoTiff, write_u8_geotiff};
 
-struct Rng(u64);
-impl Rng {
-    fn next(&mut self) -> f64 {
-        self.0 ^= self.0 >> 12;
-        self.0 ^= self.0 << 25;
-        self.0 ^= self.0 >> 27;
-        (self.0.wrapping_mul(0x2545_F491_4F6C_DD1D) >> 11) as f64 / (1u64 << 53) as f64
-    }
-}
-
 fn per_loc(secs: f64, n: usize) -> String {
     format!("{:.3} s ({:.0} ns/location)", secs, secs * 1e9 / n as f64)
-}
-
-fn load_average() -> String {
-    std::fs::read_to_string("/proc/loadavg")
-        .map(|s| s.split_whitespace().take(3).collect::<Vec<_>>().join(" "))
-        .unwrap_or_else(|_| "unknown".into())
 }
 
 fn main() {
@@ -54,16 +42,7 @@ fn main() {
 
     // Patchy 6-class landscape: classes in 10-cell blocks plus noise; 255 = nodata.
     let mut rng = Rng(2024);
-    let classes: Vec<u8> = (0..side * side)
-        .map(|i| {
-            let (c, r) = (i % side, i / side);
-            if rng.next() < 0.01 {
-                255
-            } else {
-                (((c / 10) * 7 + (r / 10) * 3 + (rng.next() < 0.2) as usize) % 6) as u8
-            }
-        })
-        .collect();
+    let classes = patchy_classes(side, &mut rng);
     let path = dir.join("classes.tif");
     let spec = |w: usize| U8GeoTiff {
         width: w as u32,
