@@ -16,6 +16,7 @@ pub mod geo;
 pub mod hmm;
 pub mod io;
 pub mod modelling;
+pub mod pipeline;
 pub mod prec;
 pub mod prepare;
 pub mod report;

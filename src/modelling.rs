@@ -133,7 +133,11 @@ pub fn read_steps(study: &Study) -> Result<(PathBuf, DataFrame), FitStageError> 
     Ok((path, df))
 }
 
-fn f64_column(path: &Path, df: &DataFrame, name: &str) -> Result<Vec<f64>, FitStageError> {
+pub(crate) fn f64_column(
+    path: &Path,
+    df: &DataFrame,
+    name: &str,
+) -> Result<Vec<f64>, FitStageError> {
     let col = df.column(name).map_err(|_| FitStageError::Column {
         path: path.to_path_buf(),
         column: name.to_string(),
@@ -158,7 +162,11 @@ fn f64_column(path: &Path, df: &DataFrame, name: &str) -> Result<Vec<f64>, FitSt
     Ok(ca.iter().map(|v| v.unwrap_or(f64::NAN)).collect())
 }
 
-fn text_column(path: &Path, df: &DataFrame, name: &str) -> Result<Vec<String>, FitStageError> {
+pub(crate) fn text_column(
+    path: &Path,
+    df: &DataFrame,
+    name: &str,
+) -> Result<Vec<String>, FitStageError> {
     let s = df
         .column(name)
         .map_err(|e| read_err(path, e))?
@@ -432,7 +440,20 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
         });
     }
     let fits: Vec<CandidateFit> = slots.into_iter().flatten().collect();
+    finish(settings, &path, df, &bounds, &step, &angle, fits)
+}
 
+/// Compares the fitted candidates, selects one by the study's rule, decodes it and
+/// computes its occupancy curves.
+fn finish(
+    settings: &ModelSettings,
+    path: &Path,
+    df: DataFrame,
+    bounds: &[(String, usize, usize)],
+    step: &[f64],
+    angle: &[f64],
+    fits: Vec<CandidateFit>,
+) -> Result<FitStage, FitStageError> {
     let ok: Vec<(&str, &FittedModel)> = fits
         .iter()
         .filter_map(|f| {
@@ -485,19 +506,14 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
         .result
         .as_ref()
         .map_err(|_| FitStageError::SelectedFailed(chosen.candidate.name.clone()))?;
-    let (_, values, _) = design_values(&path, &df, &chosen.candidate)?;
-    let data = data_of(
-        settings,
-        &bounds,
-        &step,
-        &angle,
-        &chosen.covariates,
-        &values,
-    )
-    .map_err(|source| FitStageError::Model {
-        candidate: chosen.candidate.name.clone(),
-        source,
-    })?;
+    let (_, values, _) = design_values(path, &df, &chosen.candidate)?;
+    let data =
+        data_of(settings, bounds, step, angle, &chosen.covariates, &values).map_err(|source| {
+            FitStageError::Model {
+                candidate: chosen.candidate.name.clone(),
+                source,
+            }
+        })?;
     let m = model.model();
     let model_err = |source| FitStageError::Model {
         candidate: chosen.candidate.name.clone(),
@@ -516,7 +532,7 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
     let (curves, curves_note) = if chosen.candidate.terms.is_empty() {
         (None, None)
     } else {
-        let observed = raw_columns(&path, &df, &chosen.candidate.terms)?;
+        let observed = raw_columns(path, &df, &chosen.candidate.terms)?;
         match occupancy_curves(
             model,
             &chosen.candidate.terms,
@@ -535,6 +551,102 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
         steps: df,
         curves,
         curves_note,
+    })
+}
+
+/// Rebuilds the fit stage from what `fit` wrote: the step table, `fit_summary.json` and
+/// `models/<candidate>.json`. The selected model is decoded and its curves computed again
+/// (both deterministic), so a report drawn from the files equals one drawn in memory.
+///
+/// # Errors
+/// [`FitStageError`] when the study has no `[model]`, a file is missing or unreadable, or
+/// a candidate of the study was neither fitted nor recorded as failed (run `cairn fit`).
+pub fn load(study: &Study) -> Result<FitStage, FitStageError> {
+    let settings = study.model().ok_or_else(|| FitStageError::NoModel {
+        path: study.source().to_path_buf(),
+    })?;
+    let (path, df) = read_steps(study)?;
+    let animal = text_column(&path, &df, "animal")?;
+    let segment = f64_column(&path, &df, "segment")?;
+    let step = f64_column(&path, &df, "step_m")?;
+    let angle = f64_column(&path, &df, "turn_rad")?;
+    let bounds = series_bounds(&animal, &segment);
+    let summary_path = study.output().join("fit_summary.json");
+    let text = std::fs::read_to_string(&summary_path).map_err(|e| read_err(&summary_path, e))?;
+    let summary: serde_json::Value =
+        serde_json::from_str(&text).map_err(|e| read_err(&summary_path, e))?;
+    let recorded = summary["candidates"]
+        .as_array()
+        .cloned()
+        .unwrap_or_default();
+    let mut fits = Vec::new();
+    for c in &settings.candidates {
+        let rec = recorded
+            .iter()
+            .find(|r| r["name"].as_str() == Some(c.name.as_str()));
+        let Some(rec) = rec else {
+            return Err(read_err(
+                &summary_path,
+                format!(
+                    "candidate `{}` is not in the fit summary; run `cairn fit` again",
+                    c.name
+                ),
+            ));
+        };
+        let covariates: Vec<String> = rec["covariates"]
+            .as_array()
+            .map(|a| {
+                a.iter()
+                    .filter_map(|v| v.as_str().map(String::from))
+                    .collect()
+            })
+            .unwrap_or_default();
+        let result = if rec["fitted"].as_bool() == Some(true) {
+            let mp = study
+                .output()
+                .join("models")
+                .join(format!("{}.json", c.slug()));
+            Ok(FittedModel::load(&mp).map_err(|e| read_err(&mp, e))?)
+        } else {
+            Err(rec["error"].as_str().unwrap_or("not fitted").to_string())
+        };
+        fits.push(CandidateFit {
+            candidate: c.clone(),
+            covariates,
+            result,
+        });
+    }
+    finish(settings, &path, df, &bounds, &step, &angle, fits)
+}
+
+/// The data of the selected model (its series and design), e.g. for pseudo-residuals.
+///
+/// # Errors
+/// [`FitStageError`] when the design cannot be rebuilt from the step table.
+pub fn selected_data(study: &Study, stage: &FitStage) -> Result<Data, FitStageError> {
+    let settings = study.model().ok_or_else(|| FitStageError::NoModel {
+        path: study.source().to_path_buf(),
+    })?;
+    let path = study.output().join("steps.parquet");
+    let df = &stage.steps;
+    let animal = text_column(&path, df, "animal")?;
+    let segment = f64_column(&path, df, "segment")?;
+    let step = f64_column(&path, df, "step_m")?;
+    let angle = f64_column(&path, df, "turn_rad")?;
+    let bounds = series_bounds(&animal, &segment);
+    let chosen = &stage.fits[stage.selected];
+    let (_, values, _) = design_values(&path, df, &chosen.candidate)?;
+    data_of(
+        settings,
+        &bounds,
+        &step,
+        &angle,
+        &chosen.covariates,
+        &values,
+    )
+    .map_err(|source| FitStageError::Model {
+        candidate: chosen.candidate.name.clone(),
+        source,
     })
 }
 

@@ -23,6 +23,9 @@ pub struct Cli {
     /// Print only errors.
     #[arg(short, long, global = true)]
     pub quiet: bool,
+    /// Print each stage's full account (cleaning summary, model table).
+    #[arg(short, long, global = true, conflicts_with = "quiet")]
+    pub verbose: bool,
     #[command(subcommand)]
     pub command: Command,
 }
@@ -60,6 +63,26 @@ pub enum Command {
     /// model_comparison.csv, decoded.parquet and fit_summary.json. Exit 1 when a candidate
     /// failed, did not converge, or has no usable covariance.
     Fit {
+        /// The study file (study.toml).
+        study: PathBuf,
+    },
+    /// Run the whole study: prepare, fit, report. A stage whose inputs are unchanged since
+    /// the last run (same files, same settings, same cairn version) reuses its outputs.
+    ///
+    /// Writes everything `prepare` and `fit` write, the report folder (report.html,
+    /// report.md, brief.html, brief.md, figures/, tables/) and manifest.json, and prints a
+    /// stage-timing table. Exit 1 when rows or animals were excluded or a fit is not clean.
+    Run {
+        /// The study file (study.toml).
+        study: PathBuf,
+        /// Rerun every stage even when its inputs are unchanged.
+        #[arg(long)]
+        force: bool,
+    },
+    /// Render the report from the outputs of `prepare` and `fit`: summaries, figures
+    /// (SVG + PNG), tables (CSV, GeoJSON) and report.html, report.md, brief.html, brief.md
+    /// in <output>/report, replaced as a whole only when everything was written.
+    Report {
         /// The study file (study.toml).
         study: PathBuf,
     },
@@ -125,6 +148,22 @@ pub fn run(cli: Cli) -> Result<Outcome> {
             Ok(outcome(&p.summary))
         }
         Command::Fit { study } => fit_command(&study, cli.quiet),
+        Command::Run { study, force } => {
+            let study = load(&study)?;
+            run_command(&study, force, cli.quiet, cli.verbose)
+        }
+        Command::Report { study } => {
+            let study = load(&study)?;
+            let out = crate::report::run(&study)?;
+            if !cli.quiet {
+                print!("{}", render_report(&out));
+            }
+            Ok(if out.missing.is_empty() {
+                Outcome::Clean
+            } else {
+                Outcome::WithExclusions
+            })
+        }
         Command::Simulate { study, model, seed } => {
             let study = load(&study)?;
             let out = crate::modelling::simulate(&study, model.as_deref(), seed)?;
@@ -134,6 +173,69 @@ pub fn run(cli: Cli) -> Result<Outcome> {
             Ok(Outcome::Clean)
         }
     }
+}
+
+/// Runs the pipeline with a spinner on the terminal (hidden when stderr is not one).
+pub fn run_command(study: &Study, force: bool, quiet: bool, verbose: bool) -> Result<Outcome> {
+    let bar = if quiet {
+        indicatif::ProgressBar::hidden()
+    } else {
+        let b = indicatif::ProgressBar::new_spinner();
+        b.enable_steady_tick(std::time::Duration::from_millis(120));
+        b
+    };
+    let mut progress = |line: &str| {
+        bar.set_message(line.to_string());
+        if verbose {
+            bar.suspend(|| eprintln!("{line}"));
+        }
+    };
+    let r = crate::pipeline::run(study, crate::pipeline::RunOptions { force }, &mut progress);
+    bar.finish_and_clear();
+    let r = r?;
+    if !quiet {
+        if verbose {
+            print!("{}", render_report(&r.report));
+        }
+        println!("{:<10} {:>8}  {}", "stage", "seconds", "");
+        for s in &r.stages {
+            println!(
+                "{:<10} {:>8.1}  {}",
+                s.name,
+                s.seconds,
+                if s.reused {
+                    "reused (inputs unchanged)"
+                } else {
+                    "ran"
+                }
+            );
+        }
+        for (section, why) in &r.report.missing {
+            println!("not produced: {section}: {why}");
+        }
+        println!("report: {}", r.report.dir.join("report.html").display());
+        println!("manifest: {}", r.manifest.display());
+    }
+    Ok(
+        if r.exclusions || !r.fits_clean || !r.report.missing.is_empty() {
+            Outcome::WithExclusions
+        } else {
+            Outcome::Clean
+        },
+    )
+}
+
+/// What `report` prints: the files written and the sections left out.
+pub fn render_report(out: &crate::report::ReportOutput) -> String {
+    let mut o = String::new();
+    let _ = writeln!(o, "report folder: {}", out.dir.display());
+    for f in out.files.keys() {
+        let _ = writeln!(o, "  {f}");
+    }
+    for (section, why) in &out.missing {
+        let _ = writeln!(o, "not produced: {section}: {why}");
+    }
+    o
 }
 
 fn fit_command(study: &Path, quiet: bool) -> Result<Outcome> {

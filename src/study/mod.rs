@@ -12,6 +12,7 @@
 mod covariates;
 pub mod model;
 mod raw;
+pub mod report;
 pub(crate) mod units;
 
 use std::fmt;
@@ -183,6 +184,7 @@ pub struct Study {
     model: Option<model::ModelSettings>,
     write_csv: bool,
     covariates: CovariateConfig,
+    report: report::ReportSettings,
 }
 
 fn serialize_tz<S: serde::Serializer>(tz: &Tz, s: S) -> Result<S::Ok, S::Error> {
@@ -267,9 +269,13 @@ impl Study {
     pub fn covariates(&self) -> &CovariateConfig {
         &self.covariates
     }
+    /// The validated `[report]` section (defaults when absent).
+    pub fn report(&self) -> &report::ReportSettings {
+        &self.report
+    }
 }
 
-fn invalid(key: &str, reason: impl Into<String>) -> StudyError {
+pub(crate) fn invalid(key: &str, reason: impl Into<String>) -> StudyError {
     StudyError::Invalid {
         key: key.to_string(),
         reason: reason.into(),
@@ -444,6 +450,14 @@ fn resolve(raw: raw::RawStudy, source: &Path, root: &Path) -> Result<Study, Stud
 
     let model = raw.model.as_ref().map(model::resolve).transpose()?;
     let covariates = covariates::resolve(raw.covariates, root)?;
+    let report = report::resolve(
+        raw.report,
+        root,
+        model
+            .as_ref()
+            .map(model::ModelSettings::all_labels)
+            .as_deref(),
+    )?;
 
     Ok(Study {
         name,
@@ -462,6 +476,7 @@ fn resolve(raw: raw::RawStudy, source: &Path, root: &Path) -> Result<Study, Stud
         model,
         write_csv: raw.output.csv,
         covariates,
+        report,
     })
 }
 

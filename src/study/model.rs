@@ -118,6 +118,19 @@ pub struct ModelSettings {
     pub candidates: Vec<Candidate>,
 }
 
+impl ModelSettings {
+    /// Every state label used by some candidate, in first-use order.
+    pub fn all_labels(&self) -> Vec<String> {
+        let mut out: Vec<String> = Vec::new();
+        for l in self.candidates.iter().flat_map(|c| &c.labels) {
+            if !out.contains(l) {
+                out.push(l.clone());
+            }
+        }
+        out
+    }
+}
+
 fn invalid(key: &str, reason: impl Into<String>) -> StudyError {
     StudyError::Invalid {
         key: key.to_string(),

@@ -25,6 +25,32 @@ pub(crate) struct RawStudy {
     pub(crate) output: RawOutput,
     #[serde(default)]
     pub(crate) covariates: Option<RawCovariates>,
+    #[serde(default)]
+    pub(crate) report: RawReport,
+}
+
+/// `[report]`: what the summaries, figures and reports show.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct RawReport {
+    #[serde(default)]
+    pub(crate) hotspot_state: Option<String>,
+    #[serde(default)]
+    pub(crate) cell: Option<String>,
+    #[serde(default)]
+    pub(crate) brief_factor: Option<u32>,
+    #[serde(default)]
+    pub(crate) min_hours: Option<String>,
+    #[serde(default)]
+    pub(crate) min_animals: Option<u32>,
+    #[serde(default)]
+    pub(crate) count: Option<String>,
+    #[serde(default)]
+    pub(crate) width: Option<String>,
+    #[serde(default)]
+    pub(crate) templates: Option<String>,
+    #[serde(default)]
+    pub(crate) truth: Option<String>,
 }
 
 #[derive(Debug, Deserialize)]

@@ -15,6 +15,7 @@
 //! Every result records which one produced it.
 
 pub mod animals;
+pub mod association;
 pub mod budgets;
 pub mod diagnostics;
 pub mod hotspots;

@@ -46,6 +46,55 @@ pub enum Reason {
 }
 
 impl Reason {
+    /// Every reason, in table order.
+    pub const ALL: [Reason; 15] = [
+        Reason::EmptyId,
+        Reason::UnparseableTime,
+        Reason::AmbiguousLocalTime,
+        Reason::NonexistentLocalTime,
+        Reason::MissingValue,
+        Reason::NotANumber,
+        Reason::NonFinite,
+        Reason::LonOutOfRange,
+        Reason::LatOutOfRange,
+        Reason::UnknownClass,
+        Reason::InvalidClassZ,
+        Reason::BadEllipse,
+        Reason::DuplicateTime,
+        Reason::SpeedFilter,
+        Reason::SpikeFilter,
+    ];
+
+    /// The reason whose [`Reason::code`] is `code`.
+    pub fn from_code(code: &str) -> Option<Reason> {
+        Reason::ALL.into_iter().find(|r| r.code() == code)
+    }
+
+    /// A sentence for reports.
+    pub fn meaning(self) -> &'static str {
+        match self {
+            Reason::EmptyId => "the animal id is empty",
+            Reason::UnparseableTime => "the timestamp could not be read",
+            Reason::AmbiguousLocalTime => {
+                "a wall-clock time that a daylight-saving change makes ambiguous"
+            }
+            Reason::NonexistentLocalTime => "a wall-clock time that a daylight-saving change skips",
+            Reason::MissingValue => "a required value is empty",
+            Reason::NotANumber => "a numeric column holds text",
+            Reason::NonFinite => "a number is infinite or not a number",
+            Reason::LonOutOfRange => "longitude outside [-180, 180]",
+            Reason::LatOutOfRange => "latitude outside [-90, 90]",
+            Reason::UnknownClass => "the location class or tag type is not recognised",
+            Reason::InvalidClassZ => "Argos class Z (an invalid location)",
+            Reason::BadEllipse => "the error-ellipse values are unusable",
+            Reason::DuplicateTime => {
+                "another fix of the animal at the same instant was of better quality"
+            }
+            Reason::SpeedFilter => "reachable only faster than the species' top speed",
+            Reason::SpikeFilter => "a spike (speed-distance-angle filter)",
+        }
+    }
+
     /// Stable code used in tables.
     pub fn code(self) -> &'static str {
         match self {
