@@ -24,12 +24,25 @@ pub const TEMPLATES: [(&str, &str); 5] = [
 
 /// A template that could not be parsed or rendered.
 #[derive(Debug, thiserror::Error)]
-#[error("template {file}: {message}")]
+#[error("template {file}{}: {message}", line.map(|(l, c)| format!(", line {l}, column {c}")).unwrap_or_default())]
 pub struct TemplateError {
     /// The template file (the user's, or the built-in name).
     pub file: String,
+    /// Line and column of a syntax error, when the parser gives them.
+    pub line: Option<(usize, usize)>,
     /// What went wrong, with the line and column when the parser gives them.
     pub message: String,
+}
+
+/// The "--> line:column" position in a parser message.
+fn position(message: &str) -> Option<(usize, usize)> {
+    let i = message.find("--> ")? + 4;
+    let rest = &message[i..];
+    let end = rest
+        .find(|c: char| !(c.is_ascii_digit() || c == ':'))
+        .unwrap_or(rest.len());
+    let (l, c) = rest[..end].split_once(':')?;
+    Some((l.parse().ok()?, c.parse().ok()?))
 }
 
 fn chain(e: &dyn std::error::Error) -> String {
@@ -74,6 +87,7 @@ pub fn load(user_dir: Option<&Path>) -> Result<Tera, TemplateError> {
             Some(p) => {
                 let t = std::fs::read_to_string(&p).map_err(|e| TemplateError {
                     file: p.display().to_string(),
+                    line: None,
                     message: e.to_string(),
                 })?;
                 (p.display().to_string(), t)
@@ -83,11 +97,14 @@ pub fn load(user_dir: Option<&Path>) -> Result<Tera, TemplateError> {
         sources.push((name.to_string(), file, text));
     }
     for (name, file, text) in &sources {
-        tera.add_raw_template(name, text)
-            .map_err(|e| TemplateError {
+        tera.add_raw_template(name, text).map_err(|e| {
+            let message = chain(&e);
+            TemplateError {
                 file: file.clone(),
-                message: chain(&e),
-            })?;
+                line: position(&message),
+                message,
+            }
+        })?;
     }
     Ok(tera)
 }
@@ -99,10 +116,12 @@ pub fn load(user_dir: Option<&Path>) -> Result<Tera, TemplateError> {
 pub fn render(tera: &Tera, name: &str, ctx: &ReportContext) -> Result<String, TemplateError> {
     let c = Context::from_serialize(ctx).map_err(|e| TemplateError {
         file: name.to_string(),
+        line: None,
         message: chain(&e),
     })?;
     tera.render(name, &c).map_err(|e| TemplateError {
         file: name.to_string(),
+        line: None,
         message: chain(&e),
     })
 }
