@@ -301,7 +301,7 @@ impl Annotated {
 }
 
 /// Hour of day in [0, 24) of a local time, with fractions of hours.
-fn fractional_hour<T: Timelike>(t: &T) -> f64 {
+pub(crate) fn fractional_hour<T: Timelike>(t: &T) -> f64 {
     f64::from(t.hour())
         + f64::from(t.minute()) / 60.0
         + (f64::from(t.second()) + f64::from(t.nanosecond().min(999_999_999)) * 1e-9) / 3600.0

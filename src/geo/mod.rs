@@ -1,5 +1,5 @@
 //! Geographic building blocks for covariates: sun position and diel phase, map
-//! projections, GeoTIFF rasters, class proportions in a radius, and bilinear
+//! projections, GeoTIFF rasters (read and written), class proportions in a radius, and bilinear
 //! interpolation of continuous layers.
 //!
 //! Everything here works on plain numbers and returns typed results: a location that
@@ -13,4 +13,5 @@ pub mod focal;
 pub mod interp;
 pub mod proj;
 pub mod raster;
+pub mod raster_write;
 pub mod sun;

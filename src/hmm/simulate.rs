@@ -35,7 +35,7 @@ pub struct Simulated {
     pub states: Vec<Vec<usize>>,
 }
 
-fn draw(family: Family, nat: &[f64], rng: &mut ChaCha8Rng) -> f64 {
+pub(crate) fn draw(family: Family, nat: &[f64], rng: &mut ChaCha8Rng) -> f64 {
     match family {
         Family::Gamma => {
             let shape = (nat[0] / nat[1]).powi(2);
@@ -79,7 +79,7 @@ fn von_mises(mu: f64, kappa: f64, rng: &mut ChaCha8Rng) -> f64 {
     }
 }
 
-fn pick(probs: &[f64], rng: &mut ChaCha8Rng) -> usize {
+pub(crate) fn pick(probs: &[f64], rng: &mut ChaCha8Rng) -> usize {
     let u: f64 = rng.random();
     let mut acc = 0.0;
     for (j, &p) in probs.iter().enumerate() {
