@@ -91,8 +91,11 @@ pub struct FitStage {
     pub selected: usize,
     /// Decoded states of the selected model.
     pub decoded: Decoded,
-    /// The step table the models were fitted to.
+    /// The step table the models were fitted to (rows with a missing covariate of any
+    /// candidate left out; a `series` column names the independent series).
     pub steps: DataFrame,
+    /// Steps left out because a covariate of some candidate was missing.
+    pub dropped_steps: usize,
     /// Occupancy and transition curves of the selected model (when it has covariates and
     /// a usable covariance), or why they could not be computed.
     pub curves: Option<Occupancy>,
@@ -177,17 +180,82 @@ pub(crate) fn text_column(
     Ok(ca.iter().map(|v| v.unwrap_or("").to_string()).collect())
 }
 
-/// Series boundaries: runs of equal (animal, segment), `(id, start, end)`.
-fn series_bounds(animal: &[String], segment: &[f64]) -> Vec<(String, usize, usize)> {
+/// Series boundaries: runs of equal series id, `(id, start, end)`.
+fn series_bounds(series: &[String]) -> Vec<(String, usize, usize)> {
     let mut out = Vec::new();
     let mut start = 0;
-    for k in 1..=animal.len() {
-        if k == animal.len() || animal[k] != animal[start] || segment[k] != segment[start] {
-            out.push((format!("{}#{}", animal[start], segment[start]), start, k));
+    for k in 1..=series.len() {
+        if k == series.len() || series[k] != series[start] {
+            out.push((series[start].clone(), start, k));
             start = k;
         }
     }
     out
+}
+
+/// The steps every candidate can use: rows where a covariate of any candidate is missing
+/// (a location outside a raster or on its nodata, an animal absent from the attribute
+/// table…) are left out of every candidate, so that all candidates are fitted to the same
+/// steps and their AIC and BIC stay comparable; nothing is filled in. A series (animal and
+/// segment) is split where rows were left out, and the `series` column added to the
+/// table names the pieces (`animal#segment`, then `animal#segment.2`, … after a hole).
+/// Returns the table of usable rows and the number left out.
+fn complete_steps(
+    path: &Path,
+    df: DataFrame,
+    settings: &ModelSettings,
+) -> Result<(DataFrame, usize), FitStageError> {
+    let terms: Vec<Term> = settings
+        .candidates
+        .iter()
+        .flat_map(|c| c.terms.iter().cloned())
+        .collect();
+    let raw = raw_columns(path, &df, &terms)?;
+    let n = df.height();
+    let mut keep = vec![true; n];
+    for col in raw.values() {
+        match col {
+            RawColumn::Numeric(v) => {
+                for (k, x) in keep.iter_mut().zip(v) {
+                    *k &= x.is_finite();
+                }
+            }
+            RawColumn::Categorical(v) => {
+                for (k, x) in keep.iter_mut().zip(v) {
+                    *k &= !x.is_empty();
+                }
+            }
+        }
+    }
+    let animal = text_column(path, &df, "animal")?;
+    let segment = f64_column(path, &df, "segment")?;
+    let mut series = Vec::with_capacity(n);
+    let mut piece = 1;
+    for i in 0..n {
+        if i > 0 && (animal[i] != animal[i - 1] || segment[i] != segment[i - 1]) {
+            piece = 1;
+        } else if i > 0 && !keep[i - 1] && keep[i] {
+            piece += 1;
+        }
+        series.push(if piece == 1 {
+            format!("{}#{}", animal[i], segment[i])
+        } else {
+            format!("{}#{}.{piece}", animal[i], segment[i])
+        });
+    }
+    let dropped = keep.iter().filter(|k| !**k).count();
+    let mut df = df;
+    df.with_column(Column::new("series".into(), series))
+        .map_err(|e| read_err(path, e))?;
+    let mask = BooleanChunked::from_slice("keep".into(), &keep);
+    let df = df.filter(&mask).map_err(|e| read_err(path, e))?;
+    if df.height() == 0 {
+        return Err(read_err(
+            path,
+            "every step has a missing covariate of some candidate; see covariate_missing.csv",
+        ));
+    }
+    Ok((df, dropped))
 }
 
 pub(crate) fn design_of(terms: &[Term]) -> Design {
@@ -378,11 +446,11 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
         path: study.source().to_path_buf(),
     })?;
     let (path, df) = read_steps(study)?;
-    let animal = text_column(&path, &df, "animal")?;
-    let segment = f64_column(&path, &df, "segment")?;
+    let (df, dropped) = complete_steps(&path, df, settings)?;
+    let series = text_column(&path, &df, "series")?;
     let step = f64_column(&path, &df, "step_m")?;
     let angle = f64_column(&path, &df, "turn_rad")?;
-    let bounds = series_bounds(&animal, &segment);
+    let bounds = series_bounds(&series);
 
     // Candidates without covariates are fitted first: their estimates, with every
     // covariate coefficient at zero, are the first start of the covariate candidates with
@@ -440,15 +508,17 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
         });
     }
     let fits: Vec<CandidateFit> = slots.into_iter().flatten().collect();
-    finish(settings, &path, df, &bounds, &step, &angle, fits)
+    finish(settings, &path, df, dropped, &bounds, &step, &angle, fits)
 }
 
 /// Compares the fitted candidates, selects one by the study's rule, decodes it and
 /// computes its occupancy curves.
+#[allow(clippy::too_many_arguments)]
 fn finish(
     settings: &ModelSettings,
     path: &Path,
     df: DataFrame,
+    dropped: usize,
     bounds: &[(String, usize, usize)],
     step: &[f64],
     angle: &[f64],
@@ -549,6 +619,7 @@ fn finish(
         selected,
         decoded,
         steps: df,
+        dropped_steps: dropped,
         curves,
         curves_note,
     })
@@ -566,11 +637,11 @@ pub fn load(study: &Study) -> Result<FitStage, FitStageError> {
         path: study.source().to_path_buf(),
     })?;
     let (path, df) = read_steps(study)?;
-    let animal = text_column(&path, &df, "animal")?;
-    let segment = f64_column(&path, &df, "segment")?;
+    let (df, dropped) = complete_steps(&path, df, settings)?;
+    let series = text_column(&path, &df, "series")?;
     let step = f64_column(&path, &df, "step_m")?;
     let angle = f64_column(&path, &df, "turn_rad")?;
-    let bounds = series_bounds(&animal, &segment);
+    let bounds = series_bounds(&series);
     let summary_path = study.output().join("fit_summary.json");
     let text = std::fs::read_to_string(&summary_path).map_err(|e| read_err(&summary_path, e))?;
     let summary: serde_json::Value =
@@ -616,7 +687,7 @@ pub fn load(study: &Study) -> Result<FitStage, FitStageError> {
             result,
         });
     }
-    finish(settings, &path, df, &bounds, &step, &angle, fits)
+    finish(settings, &path, df, dropped, &bounds, &step, &angle, fits)
 }
 
 /// The data of the selected model (its series and design), e.g. for pseudo-residuals.
@@ -629,11 +700,10 @@ pub fn selected_data(study: &Study, stage: &FitStage) -> Result<Data, FitStageEr
     })?;
     let path = study.output().join("steps.parquet");
     let df = &stage.steps;
-    let animal = text_column(&path, df, "animal")?;
-    let segment = f64_column(&path, df, "segment")?;
+    let series = text_column(&path, df, "series")?;
     let step = f64_column(&path, df, "step_m")?;
     let angle = f64_column(&path, df, "turn_rad")?;
-    let bounds = series_bounds(&animal, &segment);
+    let bounds = series_bounds(&series);
     let chosen = &stage.fits[stage.selected];
     let (_, values, _) = design_values(&path, df, &chosen.candidate)?;
     data_of(
@@ -851,6 +921,8 @@ pub fn write(study: &Study, stage: &FitStage) -> Result<Vec<PathBuf>, FitStageEr
         "selection": study.model().map(|m| &m.select),
         "selected": sel.candidate.name,
         "selected_file": format!("models/{}.json", sel.candidate.slug()),
+        "steps_used": stage.steps.height(),
+        "steps_left_out_missing_covariate": stage.dropped_steps,
         "candidates": stage.fits.iter().map(|f| serde_json::json!({
             "name": f.candidate.name,
             "states": f.candidate.n_states,
@@ -923,9 +995,9 @@ pub fn simulate(
         source,
     })?;
     let (path, df) = read_steps(study)?;
-    let animal = text_column(&path, &df, "animal")?;
-    let segment = f64_column(&path, &df, "segment")?;
-    let bounds = series_bounds(&animal, &segment);
+    let (df, _) = complete_steps(&path, df, settings)?;
+    let series = text_column(&path, &df, "series")?;
+    let bounds = series_bounds(&series);
     let (names, values, _) = design_values(&path, &df, c)?;
     let p = names.len();
     let designs: Vec<SeriesDesign> = bounds

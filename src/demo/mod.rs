@@ -725,6 +725,15 @@ covariates = [{true_terms}]
 name = "two states"
 states = 2
 
+[report]
+hotspot_state = "foraging"
+cell = "1 km"
+brief_factor = 3
+min_hours = "2 h"
+min_animals = 3
+# The true model, so the report can say how well the fit recovered it.
+truth = "truth.json"
+
 [output]
 csv = true
 "#,

@@ -19,7 +19,7 @@ use super::figures::residuals::residual_diagnostics;
 use super::figures::{Figure, FigureOptions, FigureWidth};
 use super::manifest::InputHash;
 use crate::hmm::FittedModel;
-use crate::hmm::dists::{Family, log_density};
+use crate::hmm::dists::log_density;
 use crate::hmm::inference::IntervalMethod;
 use crate::modelling::{self, FitStage};
 use crate::study::Study;
@@ -584,6 +584,13 @@ fn model_section(
             rows,
         },
         failed,
+        left_out: (stage.dropped_steps > 0).then(|| {
+            format!(
+                "{} steps with a missing covariate of some candidate (a location outside a raster or on its nodata cells, see covariate_missing.csv) were left out of every candidate, so that all were fitted to the same {} steps; series were split where steps were left out.",
+                stage.dropped_steps,
+                stage.steps.height()
+            )
+        }),
         figure,
     }
 }
@@ -733,9 +740,9 @@ fn distribution_figure(
     let d = &stage.decoded;
     let t = d.state.len();
     let mut share = vec![0.0; n];
-    for r in 0..t {
-        for j in 0..n {
-            share[j] += d.probs[r * n + j];
+    for row in d.probs.chunks(n.max(1)) {
+        for (s, p) in share.iter_mut().zip(row) {
+            *s += p;
         }
     }
     share.iter_mut().for_each(|s| *s /= t.max(1) as f64);
@@ -779,7 +786,6 @@ fn distribution_figure(
                 }
             })
             .collect();
-        let _ = Family::Gamma;
         panels.push(DistributionPanel {
             x_label,
             observed,
@@ -852,7 +858,10 @@ fn drivers_section(
     out.reference = curves
         .reference
         .iter()
-        .map(|(c, v)| format!("{c} at {v}"))
+        .map(|(c, v)| match v.parse::<f64>() {
+            Ok(x) => format!("{c} at {}", sig(x)),
+            Err(_) => format!("{c} at {v}"),
+        })
         .collect::<Vec<_>>()
         .join(", ");
     // Group rows by covariate (in first-appearance order).
@@ -1051,7 +1060,9 @@ fn readings(t: &AssociationTable) -> Vec<String> {
             .then(a.from.cmp(&b.from))
             .then(a.to.cmp(&b.to))
     });
-    rows.iter().map(|r| capitalise(&r.reading)).collect()
+    rows.iter()
+        .map(|r| format!("{}.", capitalise(&r.reading)))
+        .collect()
 }
 
 fn capitalise(s: &str) -> String {

@@ -143,6 +143,8 @@ pub struct ModelSection {
     pub table: Table,
     /// Candidates that could not be fitted.
     pub failed: Vec<String>,
+    /// Steps left out of every candidate (a covariate was missing), in words.
+    pub left_out: Option<String>,
     /// ΔAIC figure.
     pub figure: Option<FigureRef>,
 }
