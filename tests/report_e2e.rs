@@ -222,3 +222,32 @@ fn an_unknown_hotspot_state_stops_at_validation() {
         "{err}"
     );
 }
+
+#[test]
+fn a_study_with_one_animal_produces_what_it_can_and_says_what_it_could_not() {
+    let d = tempfile::tempdir().unwrap();
+    let study = mini(d.path(), "");
+    let all = read(&d.path().join("fixes.csv"));
+    let mut lines = all.lines();
+    let mut one = format!("{}\n", lines.next().unwrap());
+    for l in lines.filter(|l| l.starts_with("brine-01,")) {
+        one.push_str(l);
+        one.push('\n');
+    }
+    std::fs::write(d.path().join("fixes.csv"), one).unwrap();
+    let (code, out, err) = cairn(&["run", study.to_str().unwrap()]);
+    assert_eq!(code, 1, "stdout:\n{out}\nstderr:\n{err}");
+    let md = read(&d.path().join("cairn-out/report/report.md"));
+    for h in [
+        "## Model comparison",
+        "## Activity budgets",
+        "## Animals",
+        "## Diagnostics",
+    ] {
+        assert!(md.contains(h), "{h} missing");
+    }
+    // One animal can never make a shareable hotspot cell (minimum 3 animals): the report
+    // says so instead of drawing an empty map.
+    assert!(md.contains("no cell was used by 3 or more animals"), "{md}");
+    assert!(md.contains("| animals | 1 |"), "one animal counted");
+}
