@@ -295,3 +295,29 @@ fn invalid_settings_are_refused() {
         Err(FocalError::Groups { .. })
     ));
 }
+
+#[test]
+fn sixty_four_groups_keep_nodata_apart() {
+    // The largest number of groups allowed: nodata must stay out of every group even
+    // when its table is the 65th.
+    let t = GeoTransform {
+        x0: 500_000.0,
+        y0: 5_000_030.0,
+        dx: 10.0,
+        dy: -10.0,
+    };
+    let crs = RasterCrs::Projected(Projection::utm(33, false).unwrap());
+    let data = RasterData::U8(vec![0, 1, 2, 3, 200, 5, 63, 64, 0]);
+    let r = Raster::from_parts("g64", 3, 3, t, crs, Some(200.0), data).unwrap();
+    let groups: Vec<ClassGroup> = (0..64)
+        .map(|k| ClassGroup::new(format!("g{k}"), [k]))
+        .collect();
+    for window in [Window::Square, Window::Circle] {
+        let cp = ClassProportions::build(&r, groups.clone(), 15.0, window).unwrap();
+        let got = cp.counts_xy(500_015.0, 5_000_015.0).unwrap();
+        let want = brute_force(&r, &groups, 15.0, window, 500_015.0, 5_000_015.0);
+        assert_eq!(got, want, "{window:?}");
+        assert_eq!(got.nodata, 1);
+        assert_eq!((got.cells, got.per_group[0], got.per_group[63]), (9, 2, 1));
+    }
+}

@@ -174,7 +174,8 @@ impl std::fmt::Debug for ClassProportions<'_> {
 const QUERY_BLOCK: f64 = 64.0;
 
 /// Bit mask of the tables (groups, then nodata at bit `n_groups`) a code belongs to.
-fn code_mask(v: i64, groups: &[ClassGroup], nodata: Option<i64>) -> u64 {
+/// 128 bits: with 64 groups the nodata table is bit 64.
+fn code_mask(v: i64, groups: &[ClassGroup], nodata: Option<i64>) -> u128 {
     if Some(v) == nodata {
         return 1 << groups.len();
     }
@@ -193,7 +194,7 @@ fn code_mask(v: i64, groups: &[ClassGroup], nodata: Option<i64>) -> u64 {
 /// S(r₁, c₁) − S(r₀, c₁) − S(r₁, c₀) + S(r₀, c₀). The raster is cut into horizontal
 /// bands built in parallel, each from zero; each band is then offset by the
 /// running total of the bands above it (last row of the previous band).
-fn summed_area<F: Fn(usize) -> u64 + Sync>(w: usize, h: usize, m: usize, mask: F) -> Vec<u32> {
+fn summed_area<F: Fn(usize) -> u128 + Sync>(w: usize, h: usize, m: usize, mask: F) -> Vec<u32> {
     let row_len = (w + 1) * m;
     let mut s = vec![0u32; row_len * (h + 1)];
     let bands = rayon::current_num_threads().clamp(1, h);
@@ -285,7 +286,7 @@ impl<'r> ClassProportions<'r> {
             .filter(|v| v.fract() == 0.0)
             .map(|v| v as i64);
         let m = groups.len() + 1;
-        let lut = |range: std::ops::RangeInclusive<i64>| -> Vec<u64> {
+        let lut = |range: std::ops::RangeInclusive<i64>| -> Vec<u128> {
             range.map(|v| code_mask(v, &groups, nd)).collect()
         };
         let tables = match raster.data() {
