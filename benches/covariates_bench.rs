@@ -6,7 +6,7 @@
 //! 5 000 × 5 000 f32 bathymetry raster on the same grid (bilinear), the sun (position,
 //! diel phase, solar hour), clock hour in Europe/Oslo, cyclic terms, day of year,
 //! meteorological season and two standardised columns. The raster pre-pass
-//! (summed-area tables + class census) is printed separately from the look-ups. The
+//! (per-row class bit planes + class census) is printed separately from the look-ups. The
 //! load average is printed with the figures, which depend on what else runs.
 
 use std::path::PathBuf;
@@ -166,7 +166,7 @@ fn main() {
         tm.projection_s
     );
     println!(
-        "  class raster pre-pass (6 summed-area tables + nodata, class census): {:.3} s",
+        "  class raster pre-pass (row bit planes of 6 classes + nodata, class census): {:.3} s",
         tm.raster_prepass_s
     );
     println!(

@@ -67,6 +67,10 @@ fn brute_force(
 
 fn random_raster(rng: &mut Rng, geographic: bool, kind: usize) -> Raster {
     let (w, h) = (1 + rng.below(35), 1 + rng.below(35));
+    random_raster_sized(rng, geographic, kind, w, h)
+}
+
+fn random_raster_sized(rng: &mut Rng, geographic: bool, kind: usize, w: usize, h: usize) -> Raster {
     let n = w * h;
     // Codes 0..6; nodata code 6 (or none) sprinkled at random.
     let codes: Vec<i64> = (0..n).map(|_| rng.below(7) as i64).collect();
@@ -294,4 +298,101 @@ fn invalid_settings_are_refused() {
         ),
         Err(FocalError::Groups { .. })
     ));
+}
+
+#[test]
+fn sixty_four_groups_keep_nodata_apart() {
+    // The largest number of groups allowed: nodata must stay out of every group even
+    // when its table is the 65th.
+    let t = GeoTransform {
+        x0: 500_000.0,
+        y0: 5_000_030.0,
+        dx: 10.0,
+        dy: -10.0,
+    };
+    let crs = RasterCrs::Projected(Projection::utm(33, false).unwrap());
+    let data = RasterData::U8(vec![0, 1, 2, 3, 200, 5, 63, 64, 0]);
+    let r = Raster::from_parts("g64", 3, 3, t, crs, Some(200.0), data).unwrap();
+    let groups: Vec<ClassGroup> = (0..64)
+        .map(|k| ClassGroup::new(format!("g{k}"), [k]))
+        .collect();
+    for window in [Window::Square, Window::Circle] {
+        let cp = ClassProportions::build(&r, groups.clone(), 15.0, window).unwrap();
+        let got = cp.counts_xy(500_015.0, 5_000_015.0).unwrap();
+        let want = brute_force(&r, &groups, 15.0, window, 500_015.0, 5_000_015.0);
+        assert_eq!(got, want, "{window:?}");
+        assert_eq!(got.nodata, 1);
+        assert_eq!((got.cells, got.per_group[0], got.per_group[63]), (9, 2, 1));
+    }
+}
+
+#[test]
+fn wide_circle_windows_equal_brute_force() {
+    // Rows longer than one 64-cell word, widths on and around multiples of 64, and
+    // discs from under one cell to over two words across, so runs start and end in
+    // every position relative to the words (including the raster's last column).
+    let mut rng = Rng(0x5eed_f0ca_1d15);
+    let widths = [63, 64, 65, 127, 128, 129, 192, 200, 257];
+    let mut multi_word = 0;
+    for trial in 0..90 {
+        let geographic = trial % 3 == 0;
+        let w = widths[trial % widths.len()];
+        let h = 1 + rng.below(40);
+        let r = random_raster_sized(&mut rng, geographic, trial % 4, w, h);
+        let groups = groups_for(&r);
+        let t = *r.transform();
+        let cell_m = if geographic {
+            t.dx.abs() * metres_per_degree(t.y0).1
+        } else {
+            t.dx.abs()
+        };
+        let radius = cell_m * (0.4 + 90.0 * rng.next() * rng.next());
+        let cp = ClassProportions::build(&r, groups.clone(), radius, Window::Circle).unwrap();
+        for _ in 0..20 {
+            let (x, y) = t.to_world(rng.next() * w as f64, rng.next() * h as f64);
+            let got = cp.counts_xy(x, y).unwrap();
+            let want = brute_force(&r, &groups, radius, Window::Circle, x, y);
+            assert_eq!(
+                got, want,
+                "trial {trial} ({w} x {h}) at ({x}, {y}), radius {radius}"
+            );
+            if got.cells as usize > 64 * h {
+                multi_word += 1;
+            }
+        }
+    }
+    assert!(
+        multi_word > 100,
+        "too few windows with rows over 64 cells: {multi_word}"
+    );
+}
+
+#[test]
+fn circle_at_the_pole_equals_brute_force() {
+    // A geographic raster reaching 90° N, 150 columns of 0.5° and 30 rows of 0.0005°
+    // (1.65 km): a degree of longitude shrinks to at most 29 m there, so the raster is
+    // at most 2.2 km wide and a 3 km disc centred anywhere on it holds every cell,
+    // its column spans running far past both edges.
+    let mut rng = Rng(90);
+    let (w, h) = (150, 30);
+    let data = RasterData::U8((0..w * h).map(|_| rng.below(7) as u8).collect());
+    let t = GeoTransform {
+        x0: -20.0,
+        y0: 90.0,
+        dx: 0.5,
+        dy: -0.0005,
+    };
+    let r = Raster::from_parts("pole", w, h, t, RasterCrs::Geographic, Some(6.0), data).unwrap();
+    let groups = groups_for(&r);
+    let cp = ClassProportions::build(&r, groups.clone(), 3_000.0, Window::Circle).unwrap();
+    for _ in 0..60 {
+        let (x, y) = t.to_world(rng.next() * w as f64, rng.next() * h as f64);
+        let got = cp.counts_xy(x, y).unwrap();
+        assert_eq!(
+            got,
+            brute_force(&r, &groups, 3_000.0, Window::Circle, x, y),
+            "at ({x}, {y})"
+        );
+        assert_eq!(got.cells as usize, w * h, "at ({x}, {y})");
+    }
 }

@@ -10,8 +10,9 @@
 //! How it stays fast on 10^6 steps: the sun's location-free ephemeris runs once per two
 //! hours of data ([`crate::geo::sun::annotate_fixes`]); positions are projected once per
 //! distinct raster coordinate system and shared by the layers in it; a class layer is
-//! summarised once into summed-area tables (the raster pre-pass) so each window is a
-//! handful of look-ups; everything per step runs on rayon's pool and lands in input
+//! summarised once (the raster pre-pass: summed-area tables for a square window, per-row
+//! bit planes for a circle) so a window costs four look-ups (square) or one per window
+//! row (circle) ([`crate::geo::focal`]); everything per step runs on rayon's pool and lands in input
 //! order, so results do not depend on the thread count. Layers are read one at a time
 //! and dropped before the next, to bound memory.
 //!
@@ -272,7 +273,7 @@ pub struct Timings {
     pub raster_read_s: f64,
     /// Projecting positions into raster coordinate systems.
     pub projection_s: f64,
-    /// Class-layer pre-pass (summed-area tables and the code census).
+    /// Class-layer pre-pass (window tables and the code census).
     pub raster_prepass_s: f64,
     /// Window counts and bilinear look-ups.
     pub raster_lookup_s: f64,
