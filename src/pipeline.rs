@@ -169,7 +169,13 @@ fn prepare_had_exclusions(out: &Path) -> bool {
 ///
 /// # Errors
 /// The first stage error, with context naming the stage and file.
-pub fn run(study: &Study, o: RunOptions, progress: &mut dyn FnMut(&str)) -> Result<RunOutcome> {
+/// `animals(done, total)` is called from worker threads as each animal's track is smoothed.
+pub fn run(
+    study: &Study,
+    o: RunOptions,
+    progress: &mut dyn FnMut(&str),
+    animals: &(dyn Fn(usize, usize) + Sync),
+) -> Result<RunOutcome> {
     let out = study.output().to_path_buf();
     std::fs::create_dir_all(&out).with_context(|| format!("creating {}", out.display()))?;
     let mut stages_file = read_stages(&out);
@@ -187,7 +193,7 @@ pub fn run(study: &Study, o: RunOptions, progress: &mut dyn FnMut(&str)) -> Resu
         progress("prepare: inputs unchanged, reusing the prepared tables");
     } else {
         progress("prepare: ingest, clean, smooth, measure, annotate");
-        let p = crate::prepare::run(study).context("prepare stage")?;
+        let p = crate::prepare::run_with_progress(study, animals).context("prepare stage")?;
         let written =
             crate::prepare::write(study, &p, study.write_csv()).context("prepare stage")?;
         let files: Vec<PathBuf> = written.files.iter().map(PathBuf::from).collect();

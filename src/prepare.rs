@@ -132,6 +132,17 @@ pub enum PrepareError {
 /// [`PrepareError`] when an input file is unusable as a whole, or a covariate layer
 /// cannot be read or applied.
 pub fn run(study: &Study) -> Result<Prepared, PrepareError> {
+    run_with_progress(study, &|_, _| {})
+}
+
+/// As [`run`], calling `progress(done, total)` as each animal's track is smoothed.
+///
+/// # Errors
+/// As [`run`].
+pub fn run_with_progress(
+    study: &Study,
+    progress: &(dyn Fn(usize, usize) + Sync),
+) -> Result<Prepared, PrepareError> {
     let mut ingested = ingest::read_fixes(study)?;
     let files: Vec<String> = study
         .inputs()
@@ -153,7 +164,9 @@ pub fn run(study: &Study) -> Result<Prepared, PrepareError> {
         study.speed_filter(),
     );
     exclusions.extend(cleaned.exclusions);
-    let smoothed = study.grid().map(|cfg| grid::smooth(&cleaned.tracks, cfg));
+    let smoothed = study
+        .grid()
+        .map(|cfg| grid::smooth_with_progress(&cleaned.tracks, cfg, progress));
     let steps = match &smoothed {
         Some(s) => metrics::steps_of_paths(&s.paths),
         None => metrics::steps(&cleaned.tracks, study.gap_s()),

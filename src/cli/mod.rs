@@ -230,7 +230,17 @@ pub fn run_command(study: &Study, force: bool, quiet: bool, verbose: bool) -> Re
             bar.suspend(|| eprintln!("{line}"));
         }
     };
-    let r = crate::pipeline::run(study, crate::pipeline::RunOptions { force }, &mut progress);
+    let animals = |done: usize, total: usize| {
+        bar.set_message(format!(
+            "prepare: smoothing tracks, {done} of {total} animals"
+        ));
+    };
+    let r = crate::pipeline::run(
+        study,
+        crate::pipeline::RunOptions { force },
+        &mut progress,
+        &animals,
+    );
     bar.finish_and_clear();
     let r = r?;
     if !quiet {

@@ -173,7 +173,27 @@ fn smooth_track(
 /// Smooths every track onto the study's regular grid (in parallel; the result does not
 /// depend on the thread count).
 pub fn smooth(tracks: &[Track], config: &RegularConfig) -> Smoothed {
-    let results: Vec<_> = tracks.par_iter().map(|t| smooth_track(t, config)).collect();
+    smooth_with_progress(tracks, config, &|_, _| {})
+}
+
+/// As [`smooth`], calling `progress(done, total)` as each animal's track is finished
+/// (from the worker threads, in completion order).
+pub fn smooth_with_progress(
+    tracks: &[Track],
+    config: &RegularConfig,
+    progress: &(dyn Fn(usize, usize) + Sync),
+) -> Smoothed {
+    let done = std::sync::atomic::AtomicUsize::new(0);
+    let total = tracks.len();
+    let results: Vec<_> = tracks
+        .par_iter()
+        .map(|t| {
+            let r = smooth_track(t, config);
+            let k = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
+            progress(k, total);
+            r
+        })
+        .collect();
     let mut out = Smoothed {
         paths: Vec::new(),
         points: Vec::new(),
