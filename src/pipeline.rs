@@ -165,11 +165,11 @@ fn prepare_had_exclusions(out: &Path) -> bool {
 /// Runs prepare → fit → report.
 ///
 /// `progress` receives one line per step of work (stage starts, candidates being fitted);
-/// the caller decides how to show it.
+/// the caller decides how to show it. `animals(done, total)` is called from worker threads
+/// as each animal's track is smoothed.
 ///
 /// # Errors
 /// The first stage error, with context naming the stage and file.
-/// `animals(done, total)` is called from worker threads as each animal's track is smoothed.
 pub fn run(
     study: &Study,
     o: RunOptions,
