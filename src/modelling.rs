@@ -433,15 +433,19 @@ fn data_of(
     Data::new(names, covariates.to_vec(), series)
 }
 
-/// Fits every candidate of the study and decodes the selected one.
-///
-/// `progress` is called with a line of text before each candidate.
-///
-/// # Errors
-/// [`FitStageError`] when the study has no `[model]`, the step table is missing or a term
-/// names a column it does not have, or no candidate (or not the selected one) could be
-/// fitted.
-pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, FitStageError> {
+/// What both fitting and reloading a fit start from: the settings, the usable steps and
+/// their series.
+struct FitInputs<'a> {
+    settings: &'a ModelSettings,
+    path: PathBuf,
+    df: DataFrame,
+    dropped: usize,
+    bounds: Vec<(String, usize, usize)>,
+    step: Vec<f64>,
+    angle: Vec<f64>,
+}
+
+fn fit_inputs(study: &Study) -> Result<FitInputs<'_>, FitStageError> {
     let settings = study.model().ok_or_else(|| FitStageError::NoModel {
         path: study.source().to_path_buf(),
     })?;
@@ -451,6 +455,35 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
     let step = f64_column(&path, &df, "step_m")?;
     let angle = f64_column(&path, &df, "turn_rad")?;
     let bounds = series_bounds(&series);
+    Ok(FitInputs {
+        settings,
+        path,
+        df,
+        dropped,
+        bounds,
+        step,
+        angle,
+    })
+}
+
+/// Fits every candidate of the study and decodes the selected one.
+///
+/// `progress` is called with a line of text before each candidate.
+///
+/// # Errors
+/// [`FitStageError`] when the study has no `[model]`, the step table is missing or a term
+/// names a column it does not have, or no candidate (or not the selected one) could be
+/// fitted.
+pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, FitStageError> {
+    let FitInputs {
+        settings,
+        path,
+        df,
+        dropped,
+        bounds,
+        step,
+        angle,
+    } = fit_inputs(study)?;
 
     // Candidates without covariates are fitted first: their estimates, with every
     // covariate coefficient at zero, are the first start of the covariate candidates with
@@ -633,15 +666,15 @@ fn finish(
 /// [`FitStageError`] when the study has no `[model]`, a file is missing or unreadable, or
 /// a candidate of the study was neither fitted nor recorded as failed (run `cairn fit`).
 pub fn load(study: &Study) -> Result<FitStage, FitStageError> {
-    let settings = study.model().ok_or_else(|| FitStageError::NoModel {
-        path: study.source().to_path_buf(),
-    })?;
-    let (path, df) = read_steps(study)?;
-    let (df, dropped) = complete_steps(&path, df, settings)?;
-    let series = text_column(&path, &df, "series")?;
-    let step = f64_column(&path, &df, "step_m")?;
-    let angle = f64_column(&path, &df, "turn_rad")?;
-    let bounds = series_bounds(&series);
+    let FitInputs {
+        settings,
+        path,
+        df,
+        dropped,
+        bounds,
+        step,
+        angle,
+    } = fit_inputs(study)?;
     let summary_path = study.output().join("fit_summary.json");
     let text = std::fs::read_to_string(&summary_path).map_err(|e| read_err(&summary_path, e))?;
     let summary: serde_json::Value =
