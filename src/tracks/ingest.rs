@@ -145,8 +145,12 @@ pub fn read_fixes(study: &Study) -> Result<Ingested, IngestError> {
         });
     }
     for (file_index, input) in study.inputs().iter().enumerate() {
-        let df = read_frame(study, input)?;
+        let mut df = read_frame(study, input)?;
+        // One chunk per column, converted a column at a time so that only one column is
+        // ever held twice; the per-column views below then share these arrays.
+        df.rechunk_mut();
         let n = read_rows(study, input, file_index as u16, &df, &mut ids, &mut out)?;
+        drop(df);
         out.rows_per_file.push(n);
     }
     out.animals = vec![String::new(); ids.len()];
