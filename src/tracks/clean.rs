@@ -215,7 +215,12 @@ pub fn clean_animal(
     filter: SpeedFilter,
 ) -> (Track, Vec<Exclusion>) {
     let mut excl = Vec::new();
-    fixes.sort_by(|a, b| a.time_us.cmp(&b.time_us).then_with(|| quality(a, b)));
+    let order = |a: &Fix, b: &Fix| a.time_us.cmp(&b.time_us).then_with(|| quality(a, b));
+    // [`clean`] hands over runs already in this order: check before sorting, so that no
+    // sort buffer is allocated for them.
+    if !fixes.is_sorted_by(|a, b| order(a, b) != Ordering::Greater) {
+        fixes.sort_by(order);
+    }
     // Class Z and duplicate times, compacting in place: `kept` fixes are `fixes[..kept]`.
     let mut kept = 0usize;
     for r in 0..fixes.len() {
