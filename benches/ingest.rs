@@ -4,12 +4,68 @@
 //! own benches.)
 //!
 //! Each measurement runs in a child process of this binary so that its peak memory is its
-//! own. Run: `cargo bench --bench ingest`.
+//! own. Two memory figures: `peak` is the process's resident high-water mark (VmHWM: heap,
+//! code, thread stacks, allocator slack), and `heap` is the largest number of bytes live
+//! in the allocator during each stage (counted by a wrapper around the system allocator).
+//! Run: `cargo bench --bench ingest`.
 
+use std::alloc::{GlobalAlloc, Layout, System};
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicUsize, Ordering::Relaxed};
 use std::time::Instant;
 
 use polars::prelude::*;
+
+/// The system allocator, counting live bytes and their high-water mark.
+struct Counting;
+
+static LIVE: AtomicUsize = AtomicUsize::new(0);
+static PEAK: AtomicUsize = AtomicUsize::new(0);
+
+fn count_alloc(size: usize) {
+    let now = LIVE.fetch_add(size, Relaxed) + size;
+    PEAK.fetch_max(now, Relaxed);
+}
+
+// SAFETY: every call is forwarded unchanged to the system allocator; only counters are
+// updated besides.
+unsafe impl GlobalAlloc for Counting {
+    unsafe fn alloc(&self, layout: Layout) -> *mut u8 {
+        let p = unsafe { System.alloc(layout) };
+        if !p.is_null() {
+            count_alloc(layout.size());
+        }
+        p
+    }
+    unsafe fn alloc_zeroed(&self, layout: Layout) -> *mut u8 {
+        let p = unsafe { System.alloc_zeroed(layout) };
+        if !p.is_null() {
+            count_alloc(layout.size());
+        }
+        p
+    }
+    unsafe fn dealloc(&self, ptr: *mut u8, layout: Layout) {
+        unsafe { System.dealloc(ptr, layout) };
+        LIVE.fetch_sub(layout.size(), Relaxed);
+    }
+    unsafe fn realloc(&self, ptr: *mut u8, layout: Layout, new_size: usize) -> *mut u8 {
+        let p = unsafe { System.realloc(ptr, layout, new_size) };
+        if !p.is_null() {
+            LIVE.fetch_sub(layout.size(), Relaxed);
+            count_alloc(new_size);
+        }
+        p
+    }
+}
+
+#[global_allocator]
+static ALLOC: Counting = Counting;
+
+/// Heap high-water mark since the last call, MiB; restarts the count from what is live.
+fn heap_peak_mib() -> f64 {
+    let peak = PEAK.swap(LIVE.load(Relaxed), Relaxed);
+    peak as f64 / 1048576.0
+}
 
 const ANIMALS: usize = 100;
 const PER_ANIMAL: usize = 10_000;
@@ -80,15 +136,19 @@ fn study(dir: &Path, file: &str) -> PathBuf {
 
 fn child(study_path: &Path) {
     use cairn::tracks::{clean, ingest, metrics};
+    heap_peak_mib();
     let t0 = Instant::now();
     let s = cairn::study::Study::load(study_path).unwrap();
     let ingested = ingest::read_fixes(&s).unwrap();
     let t_ingest = t0.elapsed().as_secs_f64();
+    let heap_ingest = heap_peak_mib();
     let n: usize = ingested.rows_per_file.iter().sum();
     let cleaned = clean::clean(ingested, &clean::Labels::from_study(&s), s.speed_filter());
     let t_clean = t0.elapsed().as_secs_f64();
+    let heap_clean = heap_peak_mib();
     let steps = metrics::steps(&cleaned.tracks, s.gap_s());
     let secs = t0.elapsed().as_secs_f64();
+    let heap_steps = heap_peak_mib();
     let name = study_path
         .file_stem()
         .unwrap()
@@ -96,7 +156,8 @@ fn child(study_path: &Path) {
         .into_owned();
     println!(
         "{name:<8} {n:>9} fixes  ingest {t_ingest:>6.3} s  clean {:>6.3} s  steps {:>6.3} s  \
-         total {secs:>6.3} s  {:>9.0} fixes/s  steps {:>8}  peak {:>7.1} MiB",
+         total {secs:>6.3} s  {:>9.0} fixes/s  steps {:>8}  peak {:>7.1} MiB  \
+         heap ingest/clean/steps {heap_ingest:.1}/{heap_clean:.1}/{heap_steps:.1} MiB",
         t_clean - t_ingest,
         secs - t_clean,
         n as f64 / secs,

@@ -74,19 +74,28 @@ impl LocClass {
     /// assert_eq!(LocClass::parse("4"), None);
     /// ```
     pub fn parse(s: &str) -> Option<LocClass> {
+        // Compared without building an upper-cased copy: this runs once per input row.
+        const CODES: [(&str, LocClass); 14] = [
+            ("3", LocClass::Argos3),
+            ("2", LocClass::Argos2),
+            ("1", LocClass::Argos1),
+            ("0", LocClass::Argos0),
+            ("A", LocClass::ArgosA),
+            ("B", LocClass::ArgosB),
+            ("Z", LocClass::ArgosZ),
+            ("G", LocClass::Gps),
+            ("GPS", LocClass::Gps),
+            ("F", LocClass::FastlocGps),
+            ("FGPS", LocClass::FastlocGps),
+            ("FASTLOC", LocClass::FastlocGps),
+            ("FASTLOC-GPS", LocClass::FastlocGps),
+            ("FASTLOCGPS", LocClass::FastlocGps),
+        ];
         let t = s.trim();
-        Some(match t.to_ascii_uppercase().as_str() {
-            "3" => LocClass::Argos3,
-            "2" => LocClass::Argos2,
-            "1" => LocClass::Argos1,
-            "0" => LocClass::Argos0,
-            "A" => LocClass::ArgosA,
-            "B" => LocClass::ArgosB,
-            "Z" => LocClass::ArgosZ,
-            "G" | "GPS" => LocClass::Gps,
-            "F" | "FGPS" | "FASTLOC" | "FASTLOC-GPS" | "FASTLOCGPS" => LocClass::FastlocGps,
-            _ => return None,
-        })
+        CODES
+            .iter()
+            .find(|(code, _)| code.eq_ignore_ascii_case(t))
+            .map(|&(_, class)| class)
     }
 
     /// The code written to output tables.

@@ -110,7 +110,9 @@ pub fn sphere_distance(lon1: f64, lat1: f64, lon2: f64, lat2: f64) -> f64 {
     2.0 * MEAN_EARTH_RADIUS_M * h.sqrt().min(1.0).asin()
 }
 
-/// Initial great-circle bearing on the sphere, degrees clockwise from north.
+/// Initial great-circle bearing on the sphere, degrees clockwise from north (the formula
+/// [`Points::bearing`] evaluates with precomputed sines and cosines; kept as its check).
+#[cfg(test)]
 fn sphere_bearing(lon1: f64, lat1: f64, lon2: f64, lat2: f64) -> f64 {
     let (p1, p2) = (lat1.to_radians(), lat2.to_radians());
     let dl = (lon2 - lon1).to_radians();
@@ -120,14 +122,39 @@ fn sphere_bearing(lon1: f64, lat1: f64, lon2: f64, lat2: f64) -> f64 {
 }
 
 /// Cleans every animal's fixes (in parallel; the result does not depend on thread count).
+///
+/// The fixes are sorted in place (animal id, then time, then quality) and each animal's
+/// run is moved into its own vector from the end of the table, shrinking the table as it
+/// goes, so cleaning holds about one copy of the fixes rather than two.
 pub fn clean(ingested: Ingested, labels: &Labels, filter: SpeedFilter) -> Cleaned {
-    let Ingested { animals, fixes, .. } = ingested;
-    let mut per_animal: Vec<Vec<Fix>> = vec![Vec::new(); animals.len()];
-    for f in fixes {
-        per_animal[f.animal as usize].push(f);
+    let Ingested {
+        animals, mut fixes, ..
+    } = ingested;
+    // Position of each animal in id order.
+    let mut by_id: Vec<usize> = (0..animals.len()).collect();
+    by_id.sort_by(|&a, &b| animals[a].cmp(&animals[b]));
+    let mut rank = vec![0usize; animals.len()];
+    for (r, &a) in by_id.iter().enumerate() {
+        rank[a] = r;
     }
-    let mut jobs: Vec<(usize, Vec<Fix>)> = per_animal.into_iter().enumerate().collect();
-    jobs.sort_by(|a, b| animals[a.0].cmp(&animals[b.0]));
+    // Ingest gives every fix its own (file, row), so this order is total and an unstable
+    // (allocation-free) sort gives the same result as a stable one; on input already
+    // grouped by animal and in time order it is a linear scan.
+    fixes.sort_unstable_by(|a, b| {
+        rank[a.animal as usize]
+            .cmp(&rank[b.animal as usize])
+            .then(a.time_us.cmp(&b.time_us))
+            .then_with(|| quality(a, b))
+    });
+    let mut jobs: Vec<(usize, Vec<Fix>)> = Vec::with_capacity(animals.len());
+    for &a in by_id.iter().rev() {
+        let start = fixes.partition_point(|f| rank[f.animal as usize] < rank[a]);
+        let run = fixes.split_off(start);
+        fixes.shrink_to_fit();
+        jobs.push((a, run));
+    }
+    drop(fixes);
+    jobs.reverse();
     let results: Vec<(Track, Vec<Exclusion>)> = jobs
         .into_par_iter()
         .map(|(a, fixes)| clean_animal(&animals[a], fixes, labels, filter))
@@ -188,9 +215,16 @@ pub fn clean_animal(
     filter: SpeedFilter,
 ) -> (Track, Vec<Exclusion>) {
     let mut excl = Vec::new();
-    fixes.sort_by(|a, b| a.time_us.cmp(&b.time_us).then_with(|| quality(a, b)));
-    let mut kept: Vec<Fix> = Vec::with_capacity(fixes.len());
-    for f in fixes {
+    let order = |a: &Fix, b: &Fix| a.time_us.cmp(&b.time_us).then_with(|| quality(a, b));
+    // [`clean`] hands over runs already in this order: check before sorting, so that no
+    // sort buffer is allocated for them.
+    if !fixes.is_sorted_by(|a, b| order(a, b) != Ordering::Greater) {
+        fixes.sort_by(order);
+    }
+    // Class Z and duplicate times, compacting in place: `kept` fixes are `fixes[..kept]`.
+    let mut kept = 0usize;
+    for r in 0..fixes.len() {
+        let f = fixes[r];
         if f.class == LocClass::ArgosZ {
             excl.push(log(
                 labels,
@@ -202,66 +236,76 @@ pub fn clean_animal(
             ));
             continue;
         }
-        match kept.last() {
-            Some(k) if k.time_us == f.time_us => {
-                let detail = format!(
-                    "same time as {} row {} (class {}), which was kept",
-                    labels
-                        .files
-                        .get(k.file as usize)
-                        .map(String::as_str)
-                        .unwrap_or("?"),
-                    k.row,
-                    k.class
-                );
-                excl.push(log(
-                    labels,
-                    animal,
-                    &f,
-                    &labels.time,
-                    Reason::DuplicateTime,
-                    detail,
-                ));
-            }
-            _ => kept.push(f),
+        if kept > 0 && fixes[kept - 1].time_us == f.time_us {
+            let k = &fixes[kept - 1];
+            let detail = format!(
+                "same time as {} row {} (class {}), which was kept",
+                labels
+                    .files
+                    .get(k.file as usize)
+                    .map(String::as_str)
+                    .unwrap_or("?"),
+                k.row,
+                k.class
+            );
+            excl.push(log(
+                labels,
+                animal,
+                &f,
+                &labels.time,
+                Reason::DuplicateTime,
+                detail,
+            ));
+            continue;
         }
+        fixes[kept] = f;
+        kept += 1;
     }
+    fixes.truncate(kept);
     let removed = match filter {
         SpeedFilter::None => Vec::new(),
         SpeedFilter::MaxSpeed { max_speed } => {
-            speed_filter(&kept, max_speed, SpeedScore::BothNeighbours)
+            let pts = Points::new(&fixes);
+            speed_filter(&pts, max_speed, SpeedScore::BothNeighbours)
         }
         SpeedFilter::SpeedDistanceAngle {
             max_speed,
             distances,
             angles,
         } => {
-            let mut r = speed_filter(&kept, max_speed, SpeedScore::RootMeanSquare);
-            let alive: Vec<usize> = {
-                let gone: std::collections::HashSet<usize> = r.iter().map(|(i, _, _)| *i).collect();
-                (0..kept.len()).filter(|i| !gone.contains(i)).collect()
-            };
-            r.extend(spikes(&kept, &alive, distances, angles));
+            let pts = Points::new(&fixes);
+            let mut r = speed_filter(&pts, max_speed, SpeedScore::RootMeanSquare);
+            let mut gone = vec![false; fixes.len()];
+            for &(i, _, _) in &r {
+                gone[i] = true;
+            }
+            let alive: Vec<usize> = (0..fixes.len()).filter(|&i| !gone[i]).collect();
+            r.extend(spikes(&pts, &alive, distances, angles));
             r
         }
     };
-    let mut drop = vec![false; kept.len()];
-    for (i, reason, detail) in removed {
-        drop[i] = true;
-        excl.push(log(
-            labels,
-            animal,
-            &kept[i],
-            &labels.position,
-            reason,
-            detail,
-        ));
+    if !removed.is_empty() {
+        let mut drop = vec![false; fixes.len()];
+        for (i, reason, detail) in removed {
+            drop[i] = true;
+            excl.push(log(
+                labels,
+                animal,
+                &fixes[i],
+                &labels.position,
+                reason,
+                detail,
+            ));
+        }
+        let mut k = 0usize;
+        fixes.retain(|_| {
+            k += 1;
+            !drop[k - 1]
+        });
     }
-    let fixes = kept
-        .into_iter()
-        .zip(drop)
-        .filter_map(|(f, d)| (!d).then_some(f))
-        .collect();
+    if fixes.len() < fixes.capacity() {
+        fixes.shrink_to_fit();
+    }
     (
         Track {
             animal: animal.to_string(),
@@ -271,17 +315,63 @@ pub fn clean_animal(
     )
 }
 
+/// What the outlier filters need of the fixes, with the latitude's radians and their cosine
+/// and sine computed once per fix rather than once per distance. Distances and bearings
+/// come out bit for bit as [`sphere_distance`] and the spherical bearing compute them.
+struct Points {
+    time_us: Vec<i64>,
+    lon: Vec<f64>,
+    lat_rad: Vec<f64>,
+    cos_lat: Vec<f64>,
+    sin_lat: Vec<f64>,
+}
+
+impl Points {
+    fn new(fixes: &[Fix]) -> Points {
+        let lat_rad: Vec<f64> = fixes.iter().map(|f| f.lat.to_radians()).collect();
+        Points {
+            time_us: fixes.iter().map(|f| f.time_us).collect(),
+            lon: fixes.iter().map(|f| f.lon).collect(),
+            cos_lat: lat_rad.iter().map(|p| p.cos()).collect(),
+            sin_lat: lat_rad.iter().map(|p| p.sin()).collect(),
+            lat_rad,
+        }
+    }
+
+    fn len(&self) -> usize {
+        self.time_us.len()
+    }
+
+    /// [`sphere_distance`] from fix `a` to fix `b`.
+    fn distance(&self, a: usize, b: usize) -> f64 {
+        let dp = self.lat_rad[b] - self.lat_rad[a];
+        let dl = (self.lon[b] - self.lon[a]).to_radians();
+        let h =
+            (dp / 2.0).sin().powi(2) + self.cos_lat[a] * self.cos_lat[b] * (dl / 2.0).sin().powi(2);
+        2.0 * MEAN_EARTH_RADIUS_M * h.sqrt().min(1.0).asin()
+    }
+
+    /// [`sphere_bearing`] from fix `a` to fix `b`.
+    fn bearing(&self, a: usize, b: usize) -> f64 {
+        let dl = (self.lon[b] - self.lon[a]).to_radians();
+        let y = dl.sin() * self.cos_lat[b];
+        let x = self.cos_lat[a] * self.sin_lat[b] - self.sin_lat[a] * self.cos_lat[b] * dl.cos();
+        y.atan2(x).to_degrees()
+    }
+
+    /// Speed between fixes `a` and `b`, m/s.
+    fn speed(&self, a: usize, b: usize) -> f64 {
+        let dt = (self.time_us[b] - self.time_us[a]).abs() as f64 * 1e-6;
+        self.distance(a, b) / dt
+    }
+}
+
 #[derive(Clone, Copy)]
 enum SpeedScore {
     /// min(speed from previous, speed to next); one neighbour at the ends.
     BothNeighbours,
     /// McConnell et al. (1992): RMS of speeds to up to two fixes either side.
     RootMeanSquare,
-}
-
-fn speed(a: &Fix, b: &Fix) -> f64 {
-    let dt = (b.time_us - a.time_us).abs() as f64 * 1e-6;
-    sphere_distance(a.lon, a.lat, b.lon, b.lat) / dt
 }
 
 #[derive(PartialEq)]
@@ -307,7 +397,7 @@ impl Ord for Candidate {
 }
 
 /// Iterative speed filter. Returns `(index, reason, detail)` of removed fixes.
-fn speed_filter(fixes: &[Fix], vmax: f64, kind: SpeedScore) -> Vec<(usize, Reason, String)> {
+fn speed_filter(fixes: &Points, vmax: f64, kind: SpeedScore) -> Vec<(usize, Reason, String)> {
     let n = fixes.len();
     if n < 2 {
         return Vec::new();
@@ -323,9 +413,9 @@ fn speed_filter(fixes: &[Fix], vmax: f64, kind: SpeedScore) -> Vec<(usize, Reaso
         let n1 = next[i];
         match kind {
             SpeedScore::BothNeighbours => match (p1, n1) {
-                (Some(p), Some(q)) => speed(&fixes[p], &fixes[i]).min(speed(&fixes[i], &fixes[q])),
-                (Some(p), None) => speed(&fixes[p], &fixes[i]),
-                (None, Some(q)) => speed(&fixes[i], &fixes[q]),
+                (Some(p), Some(q)) => fixes.speed(p, i).min(fixes.speed(i, q)),
+                (Some(p), None) => fixes.speed(p, i),
+                (None, Some(q)) => fixes.speed(i, q),
                 (None, None) => 0.0,
             },
             SpeedScore::RootMeanSquare => {
@@ -333,7 +423,7 @@ fn speed_filter(fixes: &[Fix], vmax: f64, kind: SpeedScore) -> Vec<(usize, Reaso
                 let n2 = n1.and_then(|q| next[q]);
                 let (mut sum, mut k) = (0.0, 0u32);
                 for j in [p2, p1, n1, n2].into_iter().flatten() {
-                    sum += speed(&fixes[j], &fixes[i]).powi(2);
+                    sum += fixes.speed(j, i).powi(2);
                     k += 1;
                 }
                 if k == 0 {
@@ -411,19 +501,23 @@ fn speed_filter(fixes: &[Fix], vmax: f64, kind: SpeedScore) -> Vec<(usize, Reaso
 
 /// Spike step of the speed–distance–angle filter over the fixes `alive` (in order).
 fn spikes(
-    fixes: &[Fix],
+    fixes: &Points,
     alive: &[usize],
     dist: [f64; 2],
     ang: [f64; 2],
 ) -> Vec<(usize, Reason, String)> {
     let mut out = Vec::new();
+    // The distance into a fix is the distance out of the one before (same arguments, so
+    // the same value): computed once.
+    let mut into: Option<f64> = None;
     for w in alive.windows(3) {
-        let (a, b, c) = (&fixes[w[0]], &fixes[w[1]], &fixes[w[2]]);
-        let d1 = sphere_distance(a.lon, a.lat, b.lon, b.lat);
-        let d2 = sphere_distance(b.lon, b.lat, c.lon, c.lat);
+        let (a, b, c) = (w[0], w[1], w[2]);
+        let d1 = into.unwrap_or_else(|| fixes.distance(a, b));
+        let d2 = fixes.distance(b, c);
+        into = Some(d2);
         let angle = {
-            let back = sphere_bearing(b.lon, b.lat, a.lon, a.lat);
-            let fwd = sphere_bearing(b.lon, b.lat, c.lon, c.lat);
+            let back = fixes.bearing(b, a);
+            let fwd = fixes.bearing(b, c);
             let d = (back - fwd).rem_euclid(360.0);
             if d > 180.0 { 360.0 - d } else { d }
         };
@@ -431,7 +525,7 @@ fn spikes(
             || (d1 > dist[1] && d2 > dist[1] && angle < ang[1]);
         if spike {
             out.push((
-                w[1],
+                b,
                 Reason::SpikeFilter,
                 format!(
                     "spike: {:.0} m and {:.0} m to its neighbours with an angle of {angle:.1}°",
@@ -441,4 +535,50 @@ fn spikes(
         }
     }
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn precomputed_points_match_the_plain_formulas() {
+        let pts = [
+            (10.0, 60.0),
+            (10.01, 60.02),
+            (-179.9, -45.0),
+            (179.95, -44.9),
+            (0.0, 89.99),
+            (120.0, 0.0),
+        ];
+        let fixes: Vec<Fix> = pts
+            .iter()
+            .enumerate()
+            .map(|(i, &(lon, lat))| Fix {
+                animal: 0,
+                time_us: i as i64 * 1_000_000,
+                lon,
+                lat,
+                class: LocClass::Gps,
+                semi_major: f64::NAN,
+                semi_minor: f64::NAN,
+                orientation: f64::NAN,
+                file: 0,
+                row: i as u32 + 1,
+            })
+            .collect();
+        let p = Points::new(&fixes);
+        for (a, &(lon1, lat1)) in pts.iter().enumerate() {
+            for (b, &(lon2, lat2)) in pts.iter().enumerate() {
+                assert_eq!(
+                    p.distance(a, b).to_bits(),
+                    sphere_distance(lon1, lat1, lon2, lat2).to_bits()
+                );
+                assert_eq!(
+                    p.bearing(a, b).to_bits(),
+                    sphere_bearing(lon1, lat1, lon2, lat2).to_bits()
+                );
+            }
+        }
+    }
 }

@@ -145,8 +145,12 @@ pub fn read_fixes(study: &Study) -> Result<Ingested, IngestError> {
         });
     }
     for (file_index, input) in study.inputs().iter().enumerate() {
-        let df = read_frame(study, input)?;
+        let mut df = read_frame(study, input)?;
+        // One chunk per column, converted a column at a time so that only one column is
+        // ever held twice; the per-column views below then share these arrays.
+        df.rechunk_mut();
         let n = read_rows(study, input, file_index as u16, &df, &mut ids, &mut out)?;
+        drop(df);
         out.rows_per_file.push(n);
     }
     out.animals = vec![String::new(); ids.len()];
@@ -219,21 +223,25 @@ fn read_frame(study: &Study, input: &InputFile) -> Result<DataFrame, IngestError
     }
 }
 
-/// A text view of a column: `None` for null.
-fn text_values(
-    path: &Path,
-    df: &DataFrame,
-    name: &str,
-) -> Result<Vec<Option<String>>, IngestError> {
+/// A column as one chunk, so that row `i` is a direct look-up (no chunk search, no copy of
+/// the values).
+fn one_chunk<T: PolarsDataType>(ca: &ChunkedArray<T>) -> ChunkedArray<T> {
+    ca.rechunk().into_owned()
+}
+
+/// A text view of a column (numbers and booleans cast to text): `get(i)` is `None` for
+/// null.
+fn text_values(path: &Path, df: &DataFrame, name: &str) -> Result<StringChunked, IngestError> {
     let s = df
         .column(name)
         .map_err(|e| read_error(path, e))?
-        .as_materialized_series()
-        .clone();
+        .as_materialized_series();
+    let cast;
     let s = match s.dtype() {
         DataType::String => s,
         d if d.is_primitive_numeric() || d.is_bool() => {
-            s.cast(&DataType::String).map_err(|e| read_error(path, e))?
+            cast = s.cast(&DataType::String).map_err(|e| read_error(path, e))?;
+            &cast
         }
         other => {
             return Err(IngestError::ColumnType {
@@ -243,16 +251,15 @@ fn text_values(
             });
         }
     };
-    let ca = s.str().map_err(|e| read_error(path, e))?;
-    Ok(ca.iter().map(|v| v.map(str::to_string)).collect())
+    Ok(one_chunk(s.str().map_err(|e| read_error(path, e))?))
 }
 
-/// A numeric column: values, with the text for values that did not parse.
+/// A numeric column, read per row.
 enum Numbers {
-    /// Typed numbers (Parquet): NaN for null.
-    Typed(Vec<Option<f64>>),
-    /// Text (CSV): parsed lazily per row.
-    Text(Vec<Option<String>>),
+    /// Typed numbers (Parquet), cast to `f64`; null is missing.
+    Typed(Float64Chunked),
+    /// Text (CSV): parsed per row.
+    Text(StringChunked),
 }
 
 fn numeric_values(path: &Path, df: &DataFrame, name: &str) -> Result<Numbers, IngestError> {
@@ -263,14 +270,13 @@ fn numeric_values(path: &Path, df: &DataFrame, name: &str) -> Result<Numbers, In
     match s.dtype() {
         DataType::String => {
             let ca = s.str().map_err(|e| read_error(path, e))?;
-            let vals: Vec<Option<String>> = ca.iter().map(|v| v.map(str::to_string)).collect();
             // A column in which not one non-empty value is a number has the wrong type as a
             // whole (often a decimal comma or a wrong delimiter): stop with a clear error
             // instead of excluding every row.
             let mut non_empty = 0usize;
             let mut parsed = 0usize;
             let mut example = None;
-            for v in vals.iter().flatten() {
+            for v in ca.iter().flatten() {
                 let t = v.trim();
                 if t.is_empty() {
                     continue;
@@ -295,14 +301,14 @@ fn numeric_values(path: &Path, df: &DataFrame, name: &str) -> Result<Numbers, In
                     reason: format!("no value is a number (first value {ex:?}){hint}"),
                 });
             }
-            Ok(Numbers::Text(vals))
+            Ok(Numbers::Text(one_chunk(ca)))
         }
         d if d.is_primitive_numeric() => {
             let c = s
                 .cast(&DataType::Float64)
                 .map_err(|e| read_error(path, e))?;
             let ca = c.f64().map_err(|e| read_error(path, e))?;
-            Ok(Numbers::Typed(ca.iter().collect()))
+            Ok(Numbers::Typed(one_chunk(ca)))
         }
         other => Err(IngestError::ColumnType {
             path: path.to_path_buf(),
@@ -316,12 +322,12 @@ impl Numbers {
     /// The value at `i`, or why it is unusable.
     fn get(&self, i: usize) -> Result<f64, (Reason, String)> {
         match self {
-            Numbers::Typed(v) => match v[i] {
+            Numbers::Typed(v) => match v.get(i) {
                 None => Err((Reason::MissingValue, "empty".to_string())),
                 Some(x) if !x.is_finite() => Err((Reason::NonFinite, x.to_string())),
                 Some(x) => Ok(x),
             },
-            Numbers::Text(v) => match v[i].as_deref().map(str::trim) {
+            Numbers::Text(v) => match v.get(i).map(str::trim) {
                 None | Some("") => Err((Reason::MissingValue, "empty".to_string())),
                 Some(t) => match t.parse::<f64>() {
                     Ok(x) if x.is_finite() => Ok(x),
@@ -334,8 +340,8 @@ impl Numbers {
 
     fn is_empty_at(&self, i: usize) -> bool {
         match self {
-            Numbers::Typed(v) => v[i].is_none(),
-            Numbers::Text(v) => v[i].as_deref().is_none_or(|t| t.trim().is_empty()),
+            Numbers::Typed(v) => v.get(i).is_none(),
+            Numbers::Text(v) => v.get(i).is_none_or(|t| t.trim().is_empty()),
         }
     }
 }
@@ -343,43 +349,104 @@ impl Numbers {
 /// A value of one row, or why it is unusable.
 type RowValue<T> = Result<T, (Reason, String)>;
 
-/// Times as UTC microseconds, or the problem per row.
-fn time_values(
-    study: &Study,
+/// The time column, converted per row.
+enum Times<'s> {
+    /// Text, read by [`parse_time`].
+    Text {
+        ca: StringChunked,
+        tz: chrono_tz::Tz,
+        format: Option<&'s str>,
+    },
+    /// Datetimes as integers of `unit`; `zoned` when they are instants, otherwise
+    /// wall-clock times in `tz`.
+    Datetime {
+        ca: Int64Chunked,
+        unit: TimeUnit,
+        zoned: bool,
+        tz: chrono_tz::Tz,
+    },
+}
+
+impl Times<'_> {
+    /// UTC microseconds at row `i`, or why the row has no usable time.
+    fn get(&self, i: usize) -> RowValue<i64> {
+        match self {
+            Times::Text { ca, tz, format } => match ca.get(i).map(str::trim) {
+                None | Some("") => Err((Reason::MissingValue, "empty".to_string())),
+                Some(t) => parse_time(t, *tz, *format).map_err(|p| {
+                    let r = match p {
+                        TimeProblem::Unparseable => Reason::UnparseableTime,
+                        TimeProblem::Ambiguous => Reason::AmbiguousLocalTime,
+                        TimeProblem::Nonexistent => Reason::NonexistentLocalTime,
+                    };
+                    (r, t.to_string())
+                }),
+            },
+            Times::Datetime {
+                ca,
+                unit,
+                zoned,
+                tz,
+            } => {
+                let to_us = |v: i64| match unit {
+                    TimeUnit::Nanoseconds => v.div_euclid(1000),
+                    TimeUnit::Microseconds => v,
+                    TimeUnit::Milliseconds => v * 1000,
+                };
+                match ca.get(i) {
+                    None => Err((Reason::MissingValue, "empty".to_string())),
+                    Some(v) if *zoned => Ok(to_us(v)),
+                    Some(v) => {
+                        // A datetime without a zone is wall-clock time in the study's zone.
+                        let us = to_us(v);
+                        let naive = chrono::DateTime::from_timestamp_micros(us)
+                            .map(|d| d.naive_utc())
+                            .ok_or((Reason::UnparseableTime, v.to_string()))?;
+                        super::timeparse::localize_naive(naive, *tz).map_err(|p| {
+                            let r = if p == TimeProblem::Ambiguous {
+                                Reason::AmbiguousLocalTime
+                            } else {
+                                Reason::NonexistentLocalTime
+                            };
+                            (r, naive.to_string())
+                        })
+                    }
+                }
+            }
+        }
+    }
+}
+
+/// The time column of a frame. A text column in which every value is an unreadable
+/// timestamp is an error for the whole file.
+fn time_values<'s>(
+    study: &'s Study,
     path: &Path,
     df: &DataFrame,
     name: &str,
-) -> Result<Vec<RowValue<i64>>, IngestError> {
+) -> Result<Times<'s>, IngestError> {
     let s = df
         .column(name)
         .map_err(|e| read_error(path, e))?
         .as_materialized_series();
     let tz = study.timezone();
-    let fmt = study.time_format();
+    let format = study.time_format();
     match s.dtype().clone() {
         DataType::String => {
             let ca = s.str().map_err(|e| read_error(path, e))?;
-            let out: Vec<_> = ca
-                .iter()
-                .map(|v| match v.map(str::trim) {
-                    None | Some("") => Err((Reason::MissingValue, "empty".to_string())),
-                    Some(t) => parse_time(t, tz, fmt).map_err(|p| {
-                        let r = match p {
-                            TimeProblem::Unparseable => Reason::UnparseableTime,
-                            TimeProblem::Ambiguous => Reason::AmbiguousLocalTime,
-                            TimeProblem::Nonexistent => Reason::NonexistentLocalTime,
-                        };
-                        (r, t.to_string())
-                    }),
-                })
-                .collect();
-            if !out.is_empty()
-                && out
-                    .iter()
-                    .all(|r| matches!(r, Err((Reason::UnparseableTime, _))))
-            {
-                let first = match &out[0] {
-                    Err((_, t)) => t.clone(),
+            let times = Times::Text {
+                ca: one_chunk(ca),
+                tz,
+                format,
+            };
+            // Stops at the first row that is not an unreadable timestamp (usually the
+            // first row), so the check costs next to nothing on a good file.
+            let n = ca.len();
+            let all_unreadable =
+                n > 0 && (0..n).all(|i| matches!(times.get(i), Err((Reason::UnparseableTime, _))));
+            if all_unreadable {
+                let first = match times.get(0) {
+                    Err((_, t)) => t,
                     Ok(_) => String::new(),
                 };
                 return Err(IngestError::ColumnType {
@@ -391,38 +458,17 @@ fn time_values(
                     ),
                 });
             }
-            Ok(out)
+            Ok(times)
         }
         DataType::Datetime(unit, zone) => {
             let phys = s.cast(&DataType::Int64).map_err(|e| read_error(path, e))?;
             let ca = phys.i64().map_err(|e| read_error(path, e))?;
-            let to_us = |v: i64| match unit {
-                TimeUnit::Nanoseconds => v.div_euclid(1000),
-                TimeUnit::Microseconds => v,
-                TimeUnit::Milliseconds => v * 1000,
-            };
-            Ok(ca
-                .iter()
-                .map(|v| match v {
-                    None => Err((Reason::MissingValue, "empty".to_string())),
-                    Some(v) if zone.is_some() => Ok(to_us(v)),
-                    Some(v) => {
-                        // A datetime without a zone is wall-clock time in the study's zone.
-                        let us = to_us(v);
-                        let naive = chrono::DateTime::from_timestamp_micros(us)
-                            .map(|d| d.naive_utc())
-                            .ok_or((Reason::UnparseableTime, v.to_string()))?;
-                        super::timeparse::localize_naive(naive, tz).map_err(|p| {
-                            let r = if p == TimeProblem::Ambiguous {
-                                Reason::AmbiguousLocalTime
-                            } else {
-                                Reason::NonexistentLocalTime
-                            };
-                            (r, naive.to_string())
-                        })
-                    }
-                })
-                .collect())
+            Ok(Times::Datetime {
+                ca: one_chunk(ca),
+                unit,
+                zoned: zone.is_some(),
+                tz,
+            })
         }
         other => Err(IngestError::ColumnType {
             path: path.to_path_buf(),
@@ -476,10 +522,11 @@ fn read_rows(
     let file_label = input.path.display().to_string();
     let default_class = study.default_class();
     out.fixes.reserve(n);
+    let mut last_id: Option<(&str, u32)> = None;
 
     for i in 0..n {
         let row = i as u32 + 1;
-        let id = animal[i].as_deref().map(str::trim).unwrap_or("");
+        let id = animal.get(i).map(str::trim).unwrap_or("");
         let mut exclude = |column: &str, reason: Reason, detail: String| {
             out.exclusions.push(Exclusion {
                 file: file_label.clone(),
@@ -494,10 +541,10 @@ fn read_rows(
             exclude(&cols.animal, Reason::EmptyId, "empty".to_string());
             continue;
         }
-        let time_us = match &time[i] {
-            Ok(t) => *t,
+        let time_us = match time.get(i) {
+            Ok(t) => t,
             Err((r, d)) => {
-                exclude(&cols.time, *r, d.clone());
+                exclude(&cols.time, r, d);
                 continue;
             }
         };
@@ -524,8 +571,8 @@ fn read_rows(
             }
         };
         let loc_class = match row_class(
-            class.as_ref().map(|c| c[i].as_deref()),
-            tag.as_ref().map(|t| t[i].as_deref()),
+            class.as_ref().map(|c| c.get(i)),
+            tag.as_ref().map(|t| t.get(i)),
             default_class,
         ) {
             Ok(c) => c,
@@ -576,8 +623,23 @@ fn read_rows(
                 continue;
             }
         }
-        let next = ids.len() as u32;
-        let animal_index = *ids.entry(id.to_string()).or_insert(next);
+        // Rows usually come grouped by animal: compare with the previous row's id before
+        // hashing, and allocate an id's text only the first time it is seen.
+        let animal_index = match last_id {
+            Some((text, index)) if text == id => index,
+            _ => {
+                let index = match ids.get(id) {
+                    Some(&index) => index,
+                    None => {
+                        let index = ids.len() as u32;
+                        ids.insert(id.to_string(), index);
+                        index
+                    }
+                };
+                last_id = Some((id, index));
+                index
+            }
+        };
         out.fixes.push(Fix {
             animal: animal_index,
             time_us,

@@ -29,6 +29,7 @@ use rayon::prelude::*;
 
 use super::class::LocClass;
 use super::clean::Track;
+use super::ingest::Fix;
 
 /// Steps in columnar form; one row per step.
 #[derive(Debug, Clone, Default)]
@@ -157,46 +158,167 @@ impl Path {
 }
 
 /// Computes the step table for cleaned tracks, split at gaps longer than `gap_s`.
+///
+/// Works on the tracks' fixes directly (no copy of the positions); the result is the same
+/// as [`steps_of_paths`] over [`Path::from_track`] of every track.
 pub fn steps(tracks: &[Track], gap_s: f64) -> Steps {
-    let paths: Vec<Path> = tracks.iter().map(|t| Path::from_track(t, gap_s)).collect();
-    steps_of_paths(&paths)
+    let segs: Vec<Vec<(usize, usize)>> = tracks.par_iter().map(|t| segments(t, gap_s)).collect();
+    let counts: Vec<usize> = segs
+        .iter()
+        .map(|s| s.iter().map(|&(a, b)| (b - a).saturating_sub(1)).sum())
+        .collect();
+    let animals = tracks.iter().map(|t| t.animal.clone()).collect();
+    fill_steps(animals, &counts, |i, out| {
+        let f = &tracks[i].fixes;
+        path_steps(i as u32, segs[i].iter().map(|&(a, b)| &f[a..b]), out);
+    })
 }
 
 /// Computes the step table of paths (parallel over paths; the result does not depend on
 /// the thread count).
 pub fn steps_of_paths(paths: &[Path]) -> Steps {
-    let parts: Vec<Steps> = paths
-        .par_iter()
-        .enumerate()
-        .map(|(i, p)| path_steps(i as u32, p))
+    let counts: Vec<usize> = paths
+        .iter()
+        .map(|p| p.segments.iter().map(|s| s.len().saturating_sub(1)).sum())
         .collect();
-    let total: usize = parts.iter().map(Steps::len).sum();
+    let animals = paths.iter().map(|p| p.animal.clone()).collect();
+    fill_steps(animals, &counts, |i, out| {
+        path_steps(i as u32, paths[i].segments.iter().map(Vec::as_slice), out);
+    })
+}
+
+/// Allocates the step table once at its final size (`counts[i]` rows for path `i`) and
+/// lets `fill(i, rows)` write path `i`'s rows, in parallel over paths.
+fn fill_steps(
+    animals: Vec<String>,
+    counts: &[usize],
+    fill: impl Fn(usize, StepsMut<'_>) + Sync,
+) -> Steps {
+    let total: usize = counts.iter().sum();
     let mut out = Steps {
-        animals: paths.iter().map(|p| p.animal.clone()).collect(),
-        ..Steps::default()
+        animals,
+        animal: vec![0; total],
+        segment: vec![0; total],
+        time_us: vec![0; total],
+        lon: vec![0.0; total],
+        lat: vec![0.0; total],
+        step_m: vec![0.0; total],
+        bearing_deg: vec![0.0; total],
+        turn_rad: vec![0.0; total],
+        dt_s: vec![0.0; total],
+        class: vec![None; total],
+        se_m: vec![0.0; total],
     };
-    macro_rules! reserve_extend {
-        ($($f:ident),*) => {
-            $( out.$f.reserve(total); )*
-            for p in parts {
-                $( out.$f.extend(p.$f); )*
-            }
-        };
+    let mut parts = Vec::with_capacity(counts.len());
+    let mut rest = StepsMut::of(&mut out);
+    for &n in counts {
+        let (head, tail) = rest.split_at(n);
+        parts.push(head);
+        rest = tail;
     }
-    reserve_extend!(
-        animal,
-        segment,
-        time_us,
-        lon,
-        lat,
-        step_m,
-        bearing_deg,
-        turn_rad,
-        dt_s,
-        class,
-        se_m
-    );
+    parts
+        .into_par_iter()
+        .enumerate()
+        .for_each(|(i, rows)| fill(i, rows));
     out
+}
+
+/// Mutable views of the same rows of every column of a [`Steps`].
+struct StepsMut<'a> {
+    animal: &'a mut [u32],
+    segment: &'a mut [u32],
+    time_us: &'a mut [i64],
+    lon: &'a mut [f64],
+    lat: &'a mut [f64],
+    step_m: &'a mut [f64],
+    bearing_deg: &'a mut [f64],
+    turn_rad: &'a mut [f64],
+    dt_s: &'a mut [f64],
+    class: &'a mut [Option<LocClass>],
+    se_m: &'a mut [f64],
+}
+
+macro_rules! steps_columns {
+    ($m:ident) => {
+        $m!(
+            animal,
+            segment,
+            time_us,
+            lon,
+            lat,
+            step_m,
+            bearing_deg,
+            turn_rad,
+            dt_s,
+            class,
+            se_m
+        )
+    };
+}
+
+impl<'a> StepsMut<'a> {
+    fn of(s: &'a mut Steps) -> StepsMut<'a> {
+        macro_rules! all {
+            ($($f:ident),*) => { StepsMut { $( $f: &mut s.$f[..], )* } };
+        }
+        steps_columns!(all)
+    }
+
+    /// Rows `..n` and rows `n..`.
+    fn split_at(self, n: usize) -> (StepsMut<'a>, StepsMut<'a>) {
+        macro_rules! split {
+            ($($f:ident),*) => {{
+                $( let $f = self.$f.split_at_mut(n); )*
+                (StepsMut { $( $f: $f.0, )* }, StepsMut { $( $f: $f.1, )* })
+            }};
+        }
+        steps_columns!(split)
+    }
+}
+
+/// A point a step can start or end at.
+trait Located {
+    fn time_us(&self) -> i64;
+    fn lon(&self) -> f64;
+    fn lat(&self) -> f64;
+    fn class(&self) -> Option<LocClass>;
+    fn se_m(&self) -> f64;
+}
+
+impl Located for PathPoint {
+    fn time_us(&self) -> i64 {
+        self.time_us
+    }
+    fn lon(&self) -> f64 {
+        self.lon
+    }
+    fn lat(&self) -> f64 {
+        self.lat
+    }
+    fn class(&self) -> Option<LocClass> {
+        self.class
+    }
+    fn se_m(&self) -> f64 {
+        self.se_m
+    }
+}
+
+impl Located for Fix {
+    fn time_us(&self) -> i64 {
+        self.time_us
+    }
+    fn lon(&self) -> f64 {
+        self.lon
+    }
+    fn lat(&self) -> f64 {
+        self.lat
+    }
+    fn class(&self) -> Option<LocClass> {
+        Some(self.class)
+    }
+    fn se_m(&self) -> f64 {
+        f64::NAN
+    }
 }
 
 /// Segment boundaries of a track: `(start, end)` index ranges (end exclusive) of runs of
@@ -215,37 +337,46 @@ pub fn segments(track: &Track, gap_s: f64) -> Vec<(usize, usize)> {
     out
 }
 
-fn path_steps(animal: u32, path: &Path) -> Steps {
-    let mut s = Steps::default();
-    for (seg_no, seg) in path.segments.iter().enumerate() {
+/// Writes the steps of one path's segments into `out`, which has exactly as many rows.
+/// One inverse geodesic per step gives its length and both azimuths.
+fn path_steps<'p, P: Located + 'p>(
+    animal: u32,
+    segments: impl Iterator<Item = &'p [P]>,
+    out: StepsMut<'_>,
+) {
+    let g = Geodesic::wgs84();
+    let mut r = 0usize;
+    for (seg_no, seg) in segments.enumerate() {
         let mut prev_arrive: Option<f64> = None;
         for w in seg.windows(2) {
             let (p, q) = (&w[0], &w[1]);
-            let (len, azi1, azi2) = inverse(p.lon, p.lat, q.lon, q.lat);
+            let (len, azi1, azi2, _a12): (f64, f64, f64, f64) =
+                g.inverse(p.lat(), p.lon(), q.lat(), q.lon());
             let moved = len > 0.0;
             let turn = match (prev_arrive, moved) {
                 (Some(arr), true) => turning_angle(arr, azi1),
                 _ => f64::NAN,
             };
-            s.animal.push(animal);
-            s.segment.push(seg_no as u32 + 1);
-            s.time_us.push(p.time_us);
-            s.lon.push(p.lon);
-            s.lat.push(p.lat);
-            s.step_m.push(len);
-            s.bearing_deg.push(if moved {
+            out.animal[r] = animal;
+            out.segment[r] = seg_no as u32 + 1;
+            out.time_us[r] = p.time_us();
+            out.lon[r] = p.lon();
+            out.lat[r] = p.lat();
+            out.step_m[r] = len;
+            out.bearing_deg[r] = if moved {
                 azi1.rem_euclid(360.0)
             } else {
                 f64::NAN
-            });
-            s.turn_rad.push(turn);
-            s.dt_s.push((q.time_us - p.time_us) as f64 * 1e-6);
-            s.class.push(p.class);
-            s.se_m.push(p.se_m);
+            };
+            out.turn_rad[r] = turn;
+            out.dt_s[r] = (q.time_us() - p.time_us()) as f64 * 1e-6;
+            out.class[r] = p.class();
+            out.se_m[r] = p.se_m();
             prev_arrive = moved.then_some(azi2);
+            r += 1;
         }
     }
-    s
+    debug_assert_eq!(r, out.animal.len());
 }
 
 #[cfg(test)]
