@@ -149,9 +149,11 @@ fn main() {
     let secs = t0.elapsed().as_secs_f64();
     let c = f.convergence();
     println!(
-        "10-start fit (2 threads available, no Hessian): {secs:.1} s, {} evaluations, converged {}, \
+        "10-start fit (2 threads available, no Hessian): {secs:.1} s, {} evaluations \
+         (+ {} warm-up evaluations on a tenth of the steps), converged {}, \
          {} of {} starts at the best optimum, {} failed, log L {:.3}",
         obj.evaluations() - before,
+        c.warmup_evaluations,
         c.converged,
         c.n_at_best,
         c.n_starts,
@@ -171,9 +173,11 @@ fn main() {
     )
     .expect("fit");
     println!(
-        "1-start fit with Hessian: {:.1} s, {} evaluations, covariance available: {}",
+        "1-start fit with Hessian: {:.1} s, {} evaluations (+ {} warm-up), covariance \
+         available: {}",
         t0.elapsed().as_secs_f64(),
         obj.evaluations() - before,
+        f1.convergence().warmup_evaluations,
         f1.covariance().matrix().is_some()
     );
     match peak_memory_mib() {

@@ -222,6 +222,37 @@ pub(crate) struct Prepared {
     cov_constant: Vec<bool>,
 }
 
+impl Prepared {
+    /// The first `keep(T)` steps of every series (at most T, at least 1), for the
+    /// warm-up of a fit on a part of the data. Series are independent, so this is the
+    /// likelihood of a smaller data set of the same animals. The estimability counts are
+    /// those of the full data (the warm-up does not check them: a warm-up that fails
+    /// only falls back to the full data).
+    pub(crate) fn prefixes(&self, keep: impl Fn(usize) -> usize) -> Prepared {
+        let series: Vec<PSeries> = self
+            .series
+            .iter()
+            .map(|s| {
+                let t = keep(s.len).clamp(1, s.len.max(1)).min(s.len);
+                let p = s.cov.len().checked_div(s.len).unwrap_or(0);
+                PSeries {
+                    id: s.id.clone(),
+                    len: t,
+                    feats: s.feats.iter().map(|f| f[..t].to_vec()).collect(),
+                    cov: s.cov[..t * p].to_vec(),
+                }
+            })
+            .collect();
+        Prepared {
+            n_steps: series.iter().map(|s| s.len).sum(),
+            series,
+            n_present: self.n_present.clone(),
+            n_distinct: self.n_distinct.clone(),
+            cov_constant: self.cov_constant.clone(),
+        }
+    }
+}
+
 #[derive(Debug, Clone)]
 pub(crate) struct PSeries {
     pub id: String,
