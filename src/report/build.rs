@@ -232,16 +232,7 @@ pub fn build(study: &Study, stage: &FitStage, inputs: &[InputHash]) -> Result<Bu
     let decoded = decoded_table(study, stage)?;
 
     // What drives the states.
-    let drivers = drivers_section(
-        study,
-        stage,
-        model,
-        &labels,
-        &units,
-        &mut add_fig,
-        &mut tables,
-        &o,
-    );
+    let drivers = drivers_section(stage, model, &labels, &units, &mut add_fig, &mut tables, &o);
     if let Some(r) = &drivers.reason {
         missing.push(Missing {
             section: "What drives the states".into(),
@@ -313,7 +304,7 @@ pub fn build(study: &Study, stage: &FitStage, inputs: &[InputHash]) -> Result<Bu
         hotspots.content.as_ref(),
         &labels,
     );
-    let supports = supports(study, &decoded, hotspots.content.as_ref());
+    let supports = supports(&decoded, hotspots.content.as_ref());
     let methods = super::text::methods(study, stage, model, method);
     let n_animals = decoded.animal_ids().len();
     let study_info = StudyInfo {
@@ -801,7 +792,6 @@ fn distribution_figure(
 
 #[allow(clippy::too_many_arguments)]
 fn drivers_section(
-    study: &Study,
     stage: &FitStage,
     model: &FittedModel,
     labels: &[String],
@@ -979,7 +969,6 @@ fn drivers_section(
             rows: level_rows,
         });
     }
-    let _ = study;
     out
 }
 
@@ -1435,7 +1424,7 @@ fn findings(
     out
 }
 
-fn supports(study: &Study, d: &Decoded, hotspots: Option<&HotspotSection>) -> Vec<String> {
+fn supports(d: &Decoded, hotspots: Option<&HotspotSection>) -> Vec<String> {
     let n = d.animal_ids().len();
     let mut v = vec![
         format!(
@@ -1454,6 +1443,5 @@ fn supports(study: &Study, d: &Decoded, hotspots: Option<&HotspotSection>) -> Ve
             h.brief_rule
         ));
     }
-    let _ = study;
     v
 }
