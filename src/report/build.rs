@@ -711,14 +711,6 @@ fn chosen_section(
     })
 }
 
-fn quantile(v: &mut [f64], q: f64) -> f64 {
-    v.sort_by(f64::total_cmp);
-    if v.is_empty() {
-        return f64::NAN;
-    }
-    v[((v.len() - 1) as f64 * q).round() as usize]
-}
-
 fn distribution_figure(
     stage: &FitStage,
     model: &FittedModel,
@@ -754,7 +746,8 @@ fn distribution_figure(
             )
         } else {
             let mut fin: Vec<f64> = observed.iter().copied().filter(|x| x.is_finite()).collect();
-            let hi = quantile(&mut fin, 0.99);
+            fin.sort_by(f64::total_cmp);
+            let hi = crate::summaries::quantile_sorted(&fin, 0.99);
             (
                 (0.0, if hi > 0.0 { hi } else { 1.0 }),
                 "Step length (m)".to_string(),
