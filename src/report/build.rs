@@ -127,17 +127,6 @@ fn decoded_table(study: &Study, stage: &FitStage) -> Result<Decoded, String> {
         .map(|v| v.unwrap_or(0))
         .collect();
     let d = &stage.decoded;
-    let n = d.labels.len();
-    let probs = d.probs.clone();
-    // Rows are sorted by animal, segment and time; renormalise probabilities that the
-    // decoder left within rounding of one.
-    let mut probabilities = probs;
-    for row in probabilities.chunks_mut(n.max(1)) {
-        let s: f64 = row.iter().sum();
-        if s > 0.0 {
-            row.iter_mut().for_each(|p| *p /= s);
-        }
-    }
     let cols = DecodedColumns {
         state_labels: d.labels.clone(),
         animal: modelling::text_column(&path, df, "animal").map_err(e)?,
@@ -164,7 +153,7 @@ fn decoded_table(study: &Study, stage: &FitStage) -> Result<Decoded, String> {
         season: modelling::text_column(&path, df, "season").map_err(e)?,
         season_order: Vec::new(),
         viterbi: d.state.clone(),
-        probabilities,
+        probabilities: d.probs.clone(),
         step_m: modelling::f64_column(&path, df, "step_m").map_err(e)?,
         angle_rad: modelling::f64_column(&path, df, "turn_rad").map_err(e)?,
     };
