@@ -19,6 +19,7 @@ use crate::demo::read_truth;
 use crate::hmm::FittedModel;
 use crate::hmm::inference::IntervalMethod;
 use crate::modelling::FitStage;
+use crate::summaries::association::association_table;
 
 fn row(name: String, truth: f64, est: f64, lo: f64, hi: f64) -> Vec<String> {
     let covered = lo <= truth && truth <= hi;
@@ -85,42 +86,26 @@ pub fn recovery_section(
             }
         }
     }
-    // Transition slopes per raw unit.
-    let n = labels.len();
-    let spec = model.model().valid_spec();
-    let covs = &spec.spec().covariates;
-    let p = covs.len();
-    let se = model.working_standard_errors().unwrap_or_default();
-    let scaling = model.covariate_scaling().unwrap_or(&[]);
-    for t in &truth.transitions {
-        let (Some(i), Some(j)) = (
-            labels.iter().position(|l| l == &t.from),
-            labels.iter().position(|l| l == &t.to),
-        ) else {
-            continue;
-        };
-        if i == j || se.is_empty() {
-            continue;
-        }
-        let r = crate::hmm::spec::beta_row(n, i, j);
-        for c in &t.coefficients {
-            let Some(k) = covs.iter().position(|x| x == &c.covariate) else {
-                continue;
-            };
-            let idx = r * (1 + p) + 1 + k;
-            let b = model.params().beta[idx];
-            let s = se[spec.beta_offset + idx];
-            let sd = scaling
-                .iter()
-                .find(|x| x.name == c.covariate)
-                .map_or(1.0, |x| x.scale);
-            rows.push(row(
-                format!("{} → {}: {} ({})", t.from, t.to, c.covariate, c.per),
-                c.value,
-                b / sd,
-                (b - z * s) / sd,
-                (b + z * s) / sd,
-            ));
+    // Transition slopes per raw unit, from the association table's coefficients.
+    if let Ok(table) = association_table(model, &labels, &|_| None, 0.95) {
+        for t in &truth.transitions {
+            for c in &t.coefficients {
+                let Some(r) = table
+                    .rows
+                    .iter()
+                    .find(|r| r.from == t.from && r.to == t.to && r.term == c.covariate)
+                else {
+                    continue;
+                };
+                let sd = r.sd.unwrap_or(1.0);
+                rows.push(row(
+                    format!("{} → {}: {} ({})", t.from, t.to, c.covariate, c.per),
+                    c.value,
+                    r.coefficient / sd,
+                    (r.coefficient - z * r.se) / sd,
+                    (r.coefficient + z * r.se) / sd,
+                ));
+            }
         }
     }
     let covered = rows.iter().filter(|r| r[3] == "yes").count();
