@@ -15,8 +15,17 @@ use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Normal};
 
-const ANIMALS: usize = 50;
-const STEPS: usize = 20_000;
+/// W1's shape; `CAIRN_W1_SHAPE=ANIMALSxSTEPS` overrides it (e.g. to see the effect of
+/// series length on cache use; the figures quoted for W1 use the default).
+fn shape() -> (usize, usize) {
+    std::env::var("CAIRN_W1_SHAPE")
+        .ok()
+        .and_then(|s| {
+            let (a, b) = s.split_once('x')?;
+            Some((a.parse().ok()?, b.parse().ok()?))
+        })
+        .unwrap_or((50, 20_000))
+}
 
 fn peak_memory_mib() -> Option<f64> {
     let s = std::fs::read_to_string("/proc/self/status").ok()?;
@@ -37,6 +46,7 @@ fn thread_cpu_seconds() -> Option<f64> {
 }
 
 fn main() {
+    let (animals, steps) = shape();
     let spec = ModelSpec::new(
         3,
         vec![
@@ -67,11 +77,11 @@ fn main() {
     let model = Model::new(&spec, params).expect("valid model");
     let mut rng = ChaCha8Rng::seed_from_u64(1);
     let nd = Normal::new(0.0, 1.0).unwrap();
-    let designs: Vec<SeriesDesign> = (0..ANIMALS)
+    let designs: Vec<SeriesDesign> = (0..animals)
         .map(|k| {
             let (mut a, mut b) = (0.0_f64, 0.0_f64);
-            let mut cov = Vec::with_capacity(4 * STEPS);
-            for t in 0..STEPS {
+            let mut cov = Vec::with_capacity(4 * steps);
+            for t in 0..steps {
                 a = 0.95 * a + 0.31 * nd.sample(&mut rng);
                 b = 0.9 * b + 0.44 * nd.sample(&mut rng);
                 let h = 2.0 * std::f64::consts::PI * ((t % 24) as f64) / 24.0;
@@ -79,7 +89,7 @@ fn main() {
             }
             SeriesDesign {
                 id: format!("animal-{k:02}"),
-                len: STEPS,
+                len: steps,
                 covariates: cov,
             }
         })
@@ -101,7 +111,7 @@ fn main() {
         "calibration: {:.1} ns per exp()",
         t0.elapsed().as_secs_f64() * 1e2
     );
-    println!("W1: {ANIMALS} animals x {STEPS} steps, 3 states, gamma + von Mises, 4 covariates");
+    println!("W1: {animals} animals x {steps} steps, 3 states, gamma + von Mises, 4 covariates");
     for threads in [1, 2] {
         let pool = rayon::ThreadPoolBuilder::new()
             .num_threads(threads)
