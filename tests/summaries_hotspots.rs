@@ -1,9 +1,9 @@
 mod common;
 
+use cairn::geo::laea::Laea;
 use cairn::summaries::hotspots::{
     DayBasis, HotspotOptions, cell_polygon, hotspot_grid, hotspot_grids,
 };
-use cairn::summaries::projection::Laea;
 use cairn::summaries::{CountMethod, Decoded, DielPhase, SummaryError};
 use common::{Row, decoded, row};
 

@@ -11,6 +11,7 @@
 
 pub mod focal;
 pub mod interp;
+pub mod laea;
 pub mod proj;
 pub mod raster;
 pub mod raster_write;

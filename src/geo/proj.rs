@@ -3,9 +3,10 @@
 //! A deliberately small set: Universal Transverse Mercator (north and south zones,
 //! with automatic zone choice for a set of points), a Lambert azimuthal equal-area
 //! projection centred where the caller wants (normally the study area), and
-//! EPSG:3035 (ETRS89-LAEA Europe). The arithmetic is delegated to `proj4rs`, a pure
+//! EPSG:3035 (ETRS89-LAEA Europe). UTM and EPSG:3035 are delegated to `proj4rs`, a pure
 //! Rust port of PROJ (UTM uses its Poder/Engsager extended transverse Mercator, as
-//! PROJ does). No datum shift is applied anywhere: ETRS89 is treated as WGS84, which
+//! PROJ does); the centred equal-area projection is our own [`crate::geo::laea`], the
+//! same code the hotspot grids use, so there is one implementation of it. No datum shift is applied anywhere: ETRS89 is treated as WGS84, which
 //! it matches to better than a metre — far inside telemetry error. Longitudes and
 //! latitudes are degrees at the API; the radian convention of `proj4rs` stays inside.
 
@@ -14,10 +15,7 @@ use std::sync::Arc;
 use proj4rs::proj::Proj;
 use thiserror::Error;
 
-/// WGS84 semi-major axis (m).
-const WGS84_A: f64 = 6_378_137.0;
-/// WGS84 first eccentricity squared, from 1/f = 298.257223563.
-const WGS84_E2: f64 = 0.006_694_379_990_141_317;
+use super::laea::{Laea, WGS84_A, WGS84_E2};
 
 /// Errors from building or applying a projection.
 #[derive(Debug, Error, Clone, PartialEq)]
@@ -106,8 +104,16 @@ pub enum ProjectionKind {
 #[derive(Clone)]
 pub struct Projection {
     kind: ProjectionKind,
-    /// (geographic, projected) definitions; shared so clones are cheap and small.
-    procs: Arc<(Proj, Proj)>,
+    engine: Engine,
+}
+
+/// What does the arithmetic of a [`Projection`].
+#[derive(Clone)]
+enum Engine {
+    /// (geographic, projected) `proj4rs` definitions; shared so clones are cheap.
+    Proj4(Arc<(Proj, Proj)>),
+    /// Our own ellipsoidal LAEA.
+    Laea(Laea),
 }
 
 impl std::fmt::Debug for Projection {
@@ -178,10 +184,10 @@ impl Projection {
     fn new(kind: ProjectionKind, definition: &str) -> Result<Self, ProjError> {
         Ok(Projection {
             kind,
-            procs: Arc::new((
+            engine: Engine::Proj4(Arc::new((
                 build("+proj=longlat +ellps=WGS84 +no_defs")?,
                 build(definition)?,
-            )),
+            ))),
         })
     }
 
@@ -230,10 +236,10 @@ impl Projection {
                 lat: lat0,
             });
         }
-        let def = format!(
-            "+proj=laea +lat_0={lat0} +lon_0={lon0} +x_0=0 +y_0=0 +ellps=WGS84 +units=m +no_defs"
-        );
-        Self::new(ProjectionKind::Laea { lon0, lat0 }, &def)
+        Ok(Projection {
+            kind: ProjectionKind::Laea { lon0, lat0 },
+            engine: Engine::Laea(Laea::new(lon0, lat0)),
+        })
     }
 
     /// Lambert azimuthal equal-area centred on a set of points (circular mean
@@ -297,10 +303,16 @@ impl Projection {
         if !valid_lonlat(lon, lat) {
             return Err(bad());
         }
-        let mut p = (lon.to_radians(), lat.to_radians(), 0.0);
-        proj4rs::transform::transform(&self.procs.0, &self.procs.1, &mut p).map_err(|_| bad())?;
-        if p.0.is_finite() && p.1.is_finite() {
-            Ok((p.0, p.1))
+        let (x, y) = match &self.engine {
+            Engine::Laea(l) => l.forward(lon, lat),
+            Engine::Proj4(procs) => {
+                let mut p = (lon.to_radians(), lat.to_radians(), 0.0);
+                proj4rs::transform::transform(&procs.0, &procs.1, &mut p).map_err(|_| bad())?;
+                (p.0, p.1)
+            }
+        };
+        if x.is_finite() && y.is_finite() {
+            Ok((x, y))
         } else {
             Err(bad())
         }
@@ -319,9 +331,14 @@ impl Projection {
         if !(x.is_finite() && y.is_finite()) {
             return Err(bad());
         }
-        let mut p = (x, y, 0.0);
-        proj4rs::transform::transform(&self.procs.1, &self.procs.0, &mut p).map_err(|_| bad())?;
-        let (lon, lat) = (p.0.to_degrees(), p.1.to_degrees());
+        let (lon, lat) = match &self.engine {
+            Engine::Laea(l) => l.inverse(x, y),
+            Engine::Proj4(procs) => {
+                let mut p = (x, y, 0.0);
+                proj4rs::transform::transform(&procs.1, &procs.0, &mut p).map_err(|_| bad())?;
+                (p.0.to_degrees(), p.1.to_degrees())
+            }
+        };
         if valid_lonlat(lon, lat) {
             Ok((lon, lat))
         } else {

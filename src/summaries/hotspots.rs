@@ -28,8 +28,8 @@
 //! Limitation: cell polygons are not split at the antimeridian; a grid whose cells
 //! straddle ±180° gives polygons spanning the globe in lon/lat outputs.
 
-use super::projection::Laea;
 use super::{CountMethod, Decoded, SummaryError, csv_num};
+use crate::geo::laea::Laea;
 use rayon::prelude::*;
 use serde::Serialize;
 use std::collections::{BTreeMap, HashMap};

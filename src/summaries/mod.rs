@@ -20,7 +20,6 @@ pub mod budgets;
 pub mod diagnostics;
 pub mod hotspots;
 pub mod occupancy;
-pub mod projection;
 mod rng;
 
 use serde::Serialize;

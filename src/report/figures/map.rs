@@ -18,9 +18,9 @@ use super::style::Scale;
 use super::{
     Figure, FigureError, FigureOptions, Painter, colour, de, nice_step, render, swatch_legend,
 };
+use crate::geo::laea::{WGS84_A, WGS84_F};
 use crate::summaries::Decoded;
 use crate::summaries::hotspots::HotspotGrid;
-use crate::summaries::projection::{WGS84_A, WGS84_F};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};

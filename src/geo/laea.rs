@@ -1,10 +1,12 @@
-//! Lambert azimuthal equal-area projection on the WGS84 ellipsoid, oblique aspect,
-//! used to lay hotspot grids whose cells all have the same true area.
+//! Lambert azimuthal equal-area projection on the WGS84 ellipsoid, oblique aspect: the
+//! one implementation behind [`crate::geo::proj::Projection::laea`] (the smoother's
+//! working plane) and the hotspot grids, whose cells all have the same true area.
 //!
-//! Written here rather than pulled from a projection library because the grid needs
-//! only this one projection, forward and inverse, on f64 radians; the formulas are the
-//! published ellipsoidal ones and the tests compare against an independent
-//! implementation (PROJ through pyproj, fixture `tests/fixtures/laea_grid/`).
+//! Written here rather than taken from a projection library because it is small,
+//! infallible away from the antipode of the centre, and runs once per fix; the formulas
+//! are the published ellipsoidal ones and the tests compare against an independent
+//! implementation (PROJ through pyproj, fixtures `tests/fixtures/laea_grid/` and
+//! `tests/fixtures/projections/`).
 //!
 //! # Formula
 //! Snyder, J. P. (1987), *Map Projections — A Working Manual*, USGS Professional
@@ -17,6 +19,8 @@
 pub const WGS84_A: f64 = 6_378_137.0;
 /// WGS84 flattening.
 pub const WGS84_F: f64 = 1.0 / 298.257_223_563;
+/// WGS84 first eccentricity squared, e² = f(2 − f).
+pub const WGS84_E2: f64 = WGS84_F * (2.0 - WGS84_F);
 
 /// An oblique Lambert azimuthal equal-area projection centred on (lon0, lat0).
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
@@ -47,7 +51,7 @@ impl Laea {
     /// needed for tracking studies, which never centre a grid on a pole).
     pub fn new(lon0_deg: f64, lat0_deg: f64) -> Self {
         let lat0_deg = lat0_deg.clamp(-90.0 + 1e-9, 90.0 - 1e-9);
-        let e2 = WGS84_F * (2.0 - WGS84_F);
+        let e2 = WGS84_E2;
         let e = e2.sqrt();
         let qp = q_of(1.0, e, e2);
         let rq = WGS84_A * (qp / 2.0).sqrt();
@@ -101,13 +105,18 @@ impl Laea {
         (x, y)
     }
 
-    /// Inverse: (x, y) in metres to (lon, lat) in degrees.
+    /// Inverse: (x, y) in metres to (lon, lat) in degrees; NaN for a point outside the
+    /// projection's disk (farther from the centre than the image of its antipode).
     pub fn inverse(&self, x: f64, y: f64) -> (f64, f64) {
         let rho = ((x / self.d).powi(2) + (self.d * y).powi(2)).sqrt();
         if rho < 1e-12 {
             return (self.lon0_deg, self.lat0_deg);
         }
-        let ce = 2.0 * (rho / (2.0 * self.rq)).clamp(-1.0, 1.0).asin();
+        let sin_half = rho / (2.0 * self.rq);
+        if !(sin_half <= 1.0 + 1e-12) {
+            return (f64::NAN, f64::NAN);
+        }
+        let ce = 2.0 * sin_half.min(1.0).asin();
         let (sc, cc) = ce.sin_cos();
         let q = self.qp * (cc * self.sin_b1 + self.d * y * sc * self.cos_b1 / rho);
         let beta = (q / self.qp).clamp(-1.0, 1.0).asin();
