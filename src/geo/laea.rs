@@ -113,7 +113,7 @@ impl Laea {
             return (self.lon0_deg, self.lat0_deg);
         }
         let sin_half = rho / (2.0 * self.rq);
-        if !(sin_half <= 1.0 + 1e-12) {
+        if sin_half.is_nan() || sin_half > 1.0 + 1e-12 {
             return (f64::NAN, f64::NAN);
         }
         let ce = 2.0 * sin_half.min(1.0).asin();
