@@ -139,9 +139,10 @@ pub fn fixes_frame(tracks: &[Track], files: &[String]) -> PolarsResult<DataFrame
             lon.push(f.lon);
             lat.push(f.lat);
             class.push(f.class.code());
-            smaj.push((!f.semi_major.is_nan()).then_some(f.semi_major));
-            smin.push((!f.semi_minor.is_nan()).then_some(f.semi_minor));
-            orient.push((!f.orientation.is_nan()).then_some(f.orientation));
+            let e = t.ellipse(f);
+            smaj.push(e.map(|e| e.semi_major));
+            smin.push(e.map(|e| e.semi_minor));
+            orient.push(e.map(|e| e.orientation));
             file.push(files.get(f.file as usize).map(String::as_str).unwrap_or(""));
             row.push(f.row);
         }

@@ -4,7 +4,7 @@ use cairn::study::SpeedFilter;
 use cairn::tracks::class::LocClass;
 use cairn::tracks::clean::{Labels, clean_animal, sphere_distance};
 use cairn::tracks::exclusions::Reason;
-use cairn::tracks::ingest::Fix;
+use cairn::tracks::ingest::{Fix, NO_ELLIPSE};
 
 /// Fixes at hourly intervals; positions in (lon, lat) degrees.
 fn fixes(points: &[(f64, f64)]) -> Vec<Fix> {
@@ -17,11 +17,9 @@ fn fixes(points: &[(f64, f64)]) -> Vec<Fix> {
             lon,
             lat,
             class: LocClass::Argos2,
-            semi_major: f64::NAN,
-            semi_minor: f64::NAN,
-            orientation: f64::NAN,
             file: 0,
             row: i as u32 + 1,
+            ellipse: NO_ELLIPSE,
         })
         .collect()
 }
@@ -32,7 +30,13 @@ fn steady(n: usize) -> Vec<(f64, f64)> {
 }
 
 fn removed(points: &[(f64, f64)], filter: SpeedFilter) -> Vec<(u32, Reason)> {
-    let (_, ex) = clean_animal("a", fixes(points), &Labels::generic(&["f.csv"]), filter);
+    let (_, ex) = clean_animal(
+        "a",
+        fixes(points),
+        &[],
+        &Labels::generic(&["f.csv"]),
+        filter,
+    );
     ex.iter().map(|e| (e.row as u32, e.reason)).collect()
 }
 
@@ -118,7 +122,7 @@ fn z_and_duplicates_are_logged_with_rows() {
     dup.class = LocClass::ArgosB;
     dup.row = 99;
     f.push(dup);
-    let (t, ex) = clean_animal("a", f, &Labels::generic(&["f.csv"]), SpeedFilter::None);
+    let (t, ex) = clean_animal("a", f, &[], &Labels::generic(&["f.csv"]), SpeedFilter::None);
     let r: Vec<(u64, Reason)> = ex.iter().map(|e| (e.row, e.reason)).collect();
     assert_eq!(
         r,
@@ -126,4 +130,52 @@ fn z_and_duplicates_are_logged_with_rows() {
     );
     assert_eq!(t.fixes.len(), 4);
     assert!(t.fixes.windows(2).all(|w| w[0].time_us < w[1].time_us));
+}
+
+#[test]
+fn ellipses_follow_their_fixes_through_cleaning() {
+    use cairn::tracks::ingest::Ellipse;
+    let ellipse = |m: f64| Ellipse {
+        semi_major: m,
+        semi_minor: m / 2.0,
+        orientation: 30.0,
+    };
+    // Rows 1–4 at hours 0–3, given in reverse time order; row 2 (hour 1) is class Z;
+    // row 5 duplicates hour 2 with the same class and a smaller ellipse, so it is kept
+    // instead of row 3. Row 4 has no ellipse.
+    let mut f = fixes(&steady(4));
+    f.reverse();
+    let table = vec![
+        ellipse(900.0),
+        ellipse(800.0),
+        ellipse(700.0),
+        ellipse(300.0),
+    ];
+    f[3].ellipse = 0; // row 1
+    f[2].ellipse = 1; // row 2
+    f[2].class = LocClass::ArgosZ;
+    f[1].ellipse = 2; // row 3
+    let mut dup = f[1];
+    dup.row = 5;
+    dup.ellipse = 3;
+    f.push(dup);
+    let (t, ex) = clean_animal(
+        "a",
+        f,
+        &table,
+        &Labels::generic(&["f.csv"]),
+        SpeedFilter::None,
+    );
+    let r: Vec<(u64, Reason)> = ex.iter().map(|e| (e.row, e.reason)).collect();
+    assert_eq!(
+        r,
+        vec![(2, Reason::InvalidClassZ), (3, Reason::DuplicateTime)]
+    );
+    let kept: Vec<(u32, Option<f64>)> = t
+        .fixes
+        .iter()
+        .map(|x| (x.row, t.ellipse(x).map(|e| e.semi_major)))
+        .collect();
+    assert_eq!(kept, vec![(1, Some(900.0)), (5, Some(300.0)), (4, None)]);
+    assert_eq!(t.ellipses.len(), 2);
 }

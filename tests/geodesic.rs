@@ -5,7 +5,7 @@ use std::f64::consts::{FRAC_PI_2, PI};
 
 use cairn::tracks::class::LocClass;
 use cairn::tracks::clean::Track;
-use cairn::tracks::ingest::Fix;
+use cairn::tracks::ingest::{Fix, NO_ELLIPSE};
 use cairn::tracks::metrics::{inverse, steps, wrap_deg};
 use geographiclib_rs::{DirectGeodesic, Geodesic};
 
@@ -100,13 +100,12 @@ fn track(points: &[(f64, f64)]) -> Track {
                 lon,
                 lat,
                 class: LocClass::Gps,
-                semi_major: f64::NAN,
-                semi_minor: f64::NAN,
-                orientation: f64::NAN,
                 file: 0,
                 row: i as u32 + 1,
+                ellipse: NO_ELLIPSE,
             })
             .collect(),
+        ellipses: Vec::new(),
     }
 }
 

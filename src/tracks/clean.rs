@@ -33,7 +33,7 @@ use rayon::prelude::*;
 
 use super::class::LocClass;
 use super::exclusions::{Exclusion, Reason};
-use super::ingest::{Fix, Ingested};
+use super::ingest::{Ellipse, Fix, Ingested, NO_ELLIPSE, ellipse_of};
 use crate::study::SpeedFilter;
 
 /// Mean Earth radius R1 = (2a + b)/3 of WGS84, metres (IUGG; value from memory).
@@ -46,6 +46,15 @@ pub struct Track {
     pub animal: String,
     /// Fixes kept.
     pub fixes: Vec<Fix>,
+    /// Error ellipses of the fixes kept that have one, indexed by [`Fix::ellipse`].
+    pub ellipses: Vec<Ellipse>,
+}
+
+impl Track {
+    /// The error ellipse of one of this track's fixes, if it has one.
+    pub fn ellipse(&self, fix: &Fix) -> Option<&Ellipse> {
+        ellipse_of(fix, &self.ellipses)
+    }
 }
 
 /// The result of cleaning.
@@ -128,7 +137,10 @@ fn sphere_bearing(lon1: f64, lat1: f64, lon2: f64, lat2: f64) -> f64 {
 /// goes, so cleaning holds about one copy of the fixes rather than two.
 pub fn clean(ingested: Ingested, labels: &Labels, filter: SpeedFilter) -> Cleaned {
     let Ingested {
-        animals, mut fixes, ..
+        animals,
+        mut fixes,
+        ellipses,
+        ..
     } = ingested;
     // Position of each animal in id order.
     let mut by_id: Vec<usize> = (0..animals.len()).collect();
@@ -144,7 +156,7 @@ pub fn clean(ingested: Ingested, labels: &Labels, filter: SpeedFilter) -> Cleane
         rank[a.animal as usize]
             .cmp(&rank[b.animal as usize])
             .then(a.time_us.cmp(&b.time_us))
-            .then_with(|| quality(a, b))
+            .then_with(|| quality(a, b, &ellipses))
     });
     let mut jobs: Vec<(usize, Vec<Fix>)> = Vec::with_capacity(animals.len());
     for &a in by_id.iter().rev() {
@@ -157,7 +169,7 @@ pub fn clean(ingested: Ingested, labels: &Labels, filter: SpeedFilter) -> Cleane
     jobs.reverse();
     let results: Vec<(Track, Vec<Exclusion>)> = jobs
         .into_par_iter()
-        .map(|(a, fixes)| clean_animal(&animals[a], fixes, labels, filter))
+        .map(|(a, fixes)| clean_animal(&animals[a], fixes, &ellipses, labels, filter))
         .collect();
     let mut tracks = Vec::with_capacity(results.len());
     let mut exclusions = Vec::new();
@@ -190,15 +202,10 @@ fn log(
     }
 }
 
-/// Quality order for fixes at the same instant: better first.
-fn quality(a: &Fix, b: &Fix) -> Ordering {
-    let ellipse = |f: &Fix| {
-        if f.semi_major.is_nan() {
-            f64::INFINITY
-        } else {
-            f.semi_major
-        }
-    };
+/// Quality order for fixes at the same instant: better first. `ellipses` is the list
+/// the fixes' [`Fix::ellipse`] indexes.
+fn quality(a: &Fix, b: &Fix, ellipses: &[Ellipse]) -> Ordering {
+    let ellipse = |f: &Fix| ellipse_of(f, ellipses).map_or(f64::INFINITY, |e| e.semi_major);
     a.class
         .rank()
         .cmp(&b.class.rank())
@@ -207,15 +214,22 @@ fn quality(a: &Fix, b: &Fix) -> Ordering {
         .then(a.row.cmp(&b.row))
 }
 
-/// Cleans one animal's fixes.
+/// Cleans one animal's fixes. `ellipses` is the list their [`Fix::ellipse`] indexes
+/// (empty when no fix has an ellipse); the track gets its own list of the ellipses of the
+/// fixes it keeps.
 pub fn clean_animal(
     animal: &str,
     mut fixes: Vec<Fix>,
+    ellipses: &[Ellipse],
     labels: &Labels,
     filter: SpeedFilter,
 ) -> (Track, Vec<Exclusion>) {
     let mut excl = Vec::new();
-    let order = |a: &Fix, b: &Fix| a.time_us.cmp(&b.time_us).then_with(|| quality(a, b));
+    let order = |a: &Fix, b: &Fix| {
+        a.time_us
+            .cmp(&b.time_us)
+            .then_with(|| quality(a, b, ellipses))
+    };
     // [`clean`] hands over runs already in this order: check before sorting, so that no
     // sort buffer is allocated for them.
     if !fixes.is_sorted_by(|a, b| order(a, b) != Ordering::Greater) {
@@ -306,10 +320,20 @@ pub fn clean_animal(
     if fixes.len() < fixes.capacity() {
         fixes.shrink_to_fit();
     }
+    let mut own = Vec::new();
+    for f in fixes.iter_mut().filter(|f| f.ellipse != NO_ELLIPSE) {
+        if let Some(e) = ellipses.get(f.ellipse as usize) {
+            own.push(*e);
+            f.ellipse = own.len() as u32 - 1;
+        } else {
+            f.ellipse = NO_ELLIPSE;
+        }
+    }
     (
         Track {
             animal: animal.to_string(),
             fixes,
+            ellipses: own,
         },
         excl,
     )
@@ -361,8 +385,47 @@ impl Points {
 
     /// Speed between fixes `a` and `b`, m/s.
     fn speed(&self, a: usize, b: usize) -> f64 {
+        self.speed_over(a, b, self.distance(a, b))
+    }
+
+    /// Speed between fixes `a` and `b` given their distance `d`, m/s.
+    fn speed_over(&self, a: usize, b: usize, d: f64) -> f64 {
         let dt = (self.time_us[b] - self.time_us[a]).abs() as f64 * 1e-6;
-        self.distance(a, b) / dt
+        d / dt
+    }
+}
+
+/// Distances from each fix to the next one and the one after (by position in the track,
+/// before any removal): what the speed filters' scores need unless a removal has made
+/// more distant fixes neighbours. [`Points::distance`] is symmetric to the bit (its
+/// terms are squares of sines of negated arguments and a product), so a cached value
+/// is the one a direct call with the arguments either way round would give.
+struct NearDistances {
+    next: Vec<f64>,
+    after_next: Vec<f64>,
+}
+
+impl NearDistances {
+    fn new(p: &Points) -> NearDistances {
+        let n = p.len();
+        NearDistances {
+            next: (0..n.saturating_sub(1))
+                .map(|i| p.distance(i, i + 1))
+                .collect(),
+            after_next: (0..n.saturating_sub(2))
+                .map(|i| p.distance(i, i + 2))
+                .collect(),
+        }
+    }
+
+    /// Speed between fixes `a` and `b`, m/s, from the cache when they are near.
+    fn speed(&self, p: &Points, a: usize, b: usize) -> f64 {
+        let (lo, hi) = if a < b { (a, b) } else { (b, a) };
+        match hi - lo {
+            1 => p.speed_over(a, b, self.next[lo]),
+            2 => p.speed_over(a, b, self.after_next[lo]),
+            _ => p.speed(a, b),
+        }
     }
 }
 
@@ -407,15 +470,16 @@ fn speed_filter(fixes: &Points, vmax: f64, kind: SpeedScore) -> Vec<(usize, Reas
     let mut next: Vec<Option<usize>> = (0..n).map(|i| (i + 1 < n).then_some(i + 1)).collect();
     let mut version = vec![0u32; n];
     let mut alive = vec![true; n];
+    let near = NearDistances::new(fixes);
 
     let score = |i: usize, prev: &[Option<usize>], next: &[Option<usize>]| -> f64 {
         let p1 = prev[i];
         let n1 = next[i];
         match kind {
             SpeedScore::BothNeighbours => match (p1, n1) {
-                (Some(p), Some(q)) => fixes.speed(p, i).min(fixes.speed(i, q)),
-                (Some(p), None) => fixes.speed(p, i),
-                (None, Some(q)) => fixes.speed(i, q),
+                (Some(p), Some(q)) => near.speed(fixes, p, i).min(near.speed(fixes, i, q)),
+                (Some(p), None) => near.speed(fixes, p, i),
+                (None, Some(q)) => near.speed(fixes, i, q),
                 (None, None) => 0.0,
             },
             SpeedScore::RootMeanSquare => {
@@ -423,7 +487,7 @@ fn speed_filter(fixes: &Points, vmax: f64, kind: SpeedScore) -> Vec<(usize, Reas
                 let n2 = n1.and_then(|q| next[q]);
                 let (mut sum, mut k) = (0.0, 0u32);
                 for j in [p2, p1, n1, n2].into_iter().flatten() {
-                    sum += fixes.speed(j, i).powi(2);
+                    sum += near.speed(fixes, j, i).powi(2);
                     k += 1;
                 }
                 if k == 0 {
@@ -438,11 +502,20 @@ fn speed_filter(fixes: &Points, vmax: f64, kind: SpeedScore) -> Vec<(usize, Reas
         SpeedScore::BothNeighbours => 1,
         SpeedScore::RootMeanSquare => 2,
     };
+    // A fix scoring at or under the limit is never removed unless a removal re-scores
+    // it (which pushes it anew), and popping it would end the loop: leaving it out of
+    // the heap changes nothing but the heap's size.
     let mut heap: BinaryHeap<Candidate> = (0..n)
         .map(|i| Candidate {
             score: score(i, &prev, &next),
             index: i,
             version: 0,
+        })
+        // Exactly the entries the loop's `c.score <= vmax` test would not stop at.
+        .filter(|c| {
+            c.score
+                .partial_cmp(&vmax)
+                .is_none_or(|o| o == Ordering::Greater)
         })
         .collect();
     let mut removed = Vec::new();
@@ -560,16 +633,16 @@ mod tests {
                 lon,
                 lat,
                 class: LocClass::Gps,
-                semi_major: f64::NAN,
-                semi_minor: f64::NAN,
-                orientation: f64::NAN,
                 file: 0,
                 row: i as u32 + 1,
+                ellipse: NO_ELLIPSE,
             })
             .collect();
         let p = Points::new(&fixes);
         for (a, &(lon1, lat1)) in pts.iter().enumerate() {
             for (b, &(lon2, lat2)) in pts.iter().enumerate() {
+                // The speed filters' cache of near distances relies on this symmetry.
+                assert_eq!(p.distance(a, b).to_bits(), p.distance(b, a).to_bits());
                 assert_eq!(
                     p.distance(a, b).to_bits(),
                     sphere_distance(lon1, lat1, lon2, lat2).to_bits()

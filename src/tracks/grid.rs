@@ -148,9 +148,12 @@ fn smooth_track(
         let (x, y) = proj
             .forward(f.lon, f.lat)
             .map_err(|e| (e.to_string(), label.clone()))?;
-        let ellipse = (f.semi_minor > 0.0)
-            .then(|| ErrorCovariance::from_ellipse(f.semi_major, f.semi_minor, f.orientation).ok())
-            .flatten();
+        let ellipse = track
+            .ellipse(f)
+            .filter(|e| e.semi_minor > 0.0)
+            .and_then(|e| {
+                ErrorCovariance::from_ellipse(e.semi_major, e.semi_minor, e.orientation).ok()
+            });
         let error = match ellipse {
             Some(c) => ObservationError::Covariance(c),
             None => match LocationClass::from_fix_class(f.class) {

@@ -42,16 +42,34 @@ pub struct Fix {
     pub lat: f64,
     /// Location class.
     pub class: LocClass,
-    /// Error-ellipse semi-major axis, metres (NaN when not given).
-    pub semi_major: f64,
-    /// Error-ellipse semi-minor axis, metres (NaN when not given).
-    pub semi_minor: f64,
-    /// Error-ellipse orientation, degrees clockwise from north (NaN when not given).
-    pub orientation: f64,
     /// Index into the study's input files.
     pub file: u16,
     /// Data row in that file, 1-based.
     pub row: u32,
+    /// Index of the fix's error ellipse in the list that travels with it
+    /// ([`Ingested::ellipses`], then [`super::clean::Track::ellipses`]), or
+    /// [`NO_ELLIPSE`]. Kept out of line so that a fix is 40 bytes, not 64, when (as with
+    /// GPS data) most or all fixes have no ellipse.
+    pub ellipse: u32,
+}
+
+/// [`Fix::ellipse`] of a fix without an error ellipse.
+pub const NO_ELLIPSE: u32 = u32::MAX;
+
+/// An Argos error ellipse.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Ellipse {
+    /// Semi-major axis, metres.
+    pub semi_major: f64,
+    /// Semi-minor axis, metres.
+    pub semi_minor: f64,
+    /// Orientation of the semi-major axis, degrees clockwise from north.
+    pub orientation: f64,
+}
+
+/// The ellipse of `fix` in `ellipses` (the list its [`Fix::ellipse`] indexes), if any.
+pub fn ellipse_of<'a>(fix: &Fix, ellipses: &'a [Ellipse]) -> Option<&'a Ellipse> {
+    ellipses.get(fix.ellipse as usize)
 }
 
 /// Everything ingest read.
@@ -61,6 +79,8 @@ pub struct Ingested {
     pub animals: Vec<String>,
     /// Usable fixes in file order.
     pub fixes: Vec<Fix>,
+    /// Error ellipses of the fixes that have one, indexed by [`Fix::ellipse`].
+    pub ellipses: Vec<Ellipse>,
     /// Rows that could not be used.
     pub exclusions: Vec<Exclusion>,
     /// Data rows read per input file.
@@ -78,7 +98,9 @@ pub enum IngestError {
         column: String,
         reason: String,
     },
-    #[error("input file {path}: more than {max} input files or rows than an index can hold")]
+    #[error(
+        "input file {path}: more than {max} input files, rows or error ellipses than an index can hold"
+    )]
     TooLarge { path: PathBuf, max: u64 },
 }
 
@@ -585,13 +607,17 @@ fn read_rows(
                 continue;
             }
         };
-        let (mut smaj, mut smin, mut orient) = (f64::NAN, f64::NAN, f64::NAN);
+        let mut row_ellipse = None;
         if let Some((a, b, o)) = &ellipse {
             let empties = [a, b, o].iter().filter(|c| c.is_empty_at(i)).count();
             if empties == 0 {
                 match (a.get(i), b.get(i), o.get(i)) {
                     (Ok(x), Ok(y), Ok(z)) if x >= 0.0 && y >= 0.0 && x >= y => {
-                        (smaj, smin, orient) = (x, y, z);
+                        row_ellipse = Some(Ellipse {
+                            semi_major: x,
+                            semi_minor: y,
+                            orientation: z,
+                        });
                     }
                     (Ok(x), Ok(y), Ok(_)) => {
                         exclude(
@@ -640,17 +666,28 @@ fn read_rows(
                 index
             }
         };
+        let ellipse_index = match row_ellipse {
+            Some(e) => {
+                if out.ellipses.len() >= NO_ELLIPSE as usize {
+                    return Err(IngestError::TooLarge {
+                        path: path.clone(),
+                        max: u64::from(NO_ELLIPSE),
+                    });
+                }
+                out.ellipses.push(e);
+                out.ellipses.len() as u32 - 1
+            }
+            None => NO_ELLIPSE,
+        };
         out.fixes.push(Fix {
             animal: animal_index,
             time_us,
             lon: lon_v,
             lat: lat_v,
             class: loc_class,
-            semi_major: smaj,
-            semi_minor: smin,
-            orientation: orient,
             file: file_index,
             row,
+            ellipse: ellipse_index,
         });
     }
     Ok(n)
