@@ -10,6 +10,7 @@
 //! depend on the number of threads.
 
 pub mod focal;
+pub mod geodesic;
 pub mod interp;
 pub mod laea;
 pub mod proj;

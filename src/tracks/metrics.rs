@@ -9,7 +9,9 @@
 //!
 //! # Formula
 //! Step length and azimuths solve the inverse geodesic problem on the WGS84 ellipsoid
-//! (Karney 2013, *Algorithms for geodesics*, J. Geodesy 87:43–55) via `geographiclib-rs`.
+//! ([`crate::geo::geodesic`]): Karney 2013, *Algorithms for geodesics*, J. Geodesy
+//! 87:43–55, via `geographiclib-rs`, with lines of chord ≤ 20 km away from the poles
+//! solved in closed form from the chord, which agrees with Karney's to 10 µm.
 //! The **bearing** of a step is its departure azimuth α₁ (degrees clockwise from north,
 //! in [0, 360)). The **turning angle** at the fix shared by steps k−1 and k is
 //!
@@ -24,8 +26,10 @@
 //! geodesic travel at zero turn even on long steps at high latitude. A step of length zero
 //! has no direction: its bearing and the turning angles on both sides of it are missing.
 
-use geographiclib_rs::{Geodesic, InverseGeodesic};
+use geographiclib_rs::Geodesic;
 use rayon::prelude::*;
+
+use crate::geo::geodesic::{Site, inverse_sites};
 
 use super::class::LocClass;
 use super::clean::Track;
@@ -88,9 +92,7 @@ pub fn wrap_deg(x: f64) -> f64 {
 /// assert!((a1 - 90.0).abs() < 1e-12 && (a2 - 90.0).abs() < 1e-12);
 /// ```
 pub fn inverse(lon1: f64, lat1: f64, lon2: f64, lat2: f64) -> (f64, f64, f64) {
-    let g = Geodesic::wgs84();
-    let (s12, azi1, azi2, _a12): (f64, f64, f64, f64) = g.inverse(lat1, lon1, lat2, lon2);
-    (s12, azi1, azi2)
+    crate::geo::geodesic::inverse(lon1, lat1, lon2, lat2)
 }
 
 /// Turning angle (radians, (−π, π], positive left) between a step arriving with azimuth
@@ -338,7 +340,8 @@ pub fn segments(track: &Track, gap_s: f64) -> Vec<(usize, usize)> {
 }
 
 /// Writes the steps of one path's segments into `out`, which has exactly as many rows.
-/// One inverse geodesic per step gives its length and both azimuths.
+/// One inverse geodesic per step gives its length and both azimuths; each fix is
+/// prepared once ([`Site`]) for the two steps that share it.
 fn path_steps<'p, P: Located + 'p>(
     animal: u32,
     segments: impl Iterator<Item = &'p [P]>,
@@ -348,10 +351,15 @@ fn path_steps<'p, P: Located + 'p>(
     let mut r = 0usize;
     for (seg_no, seg) in segments.enumerate() {
         let mut prev_arrive: Option<f64> = None;
+        let mut next_site = seg.first().map(|p| Site::new(p.lon(), p.lat()));
         for w in seg.windows(2) {
             let (p, q) = (&w[0], &w[1]);
-            let (len, azi1, azi2, _a12): (f64, f64, f64, f64) =
-                g.inverse(p.lat(), p.lon(), q.lat(), q.lon());
+            let (sp, sq) = (
+                next_site.expect("set before the loop and at each step"),
+                Site::new(q.lon(), q.lat()),
+            );
+            next_site = Some(sq);
+            let (len, azi1, azi2) = inverse_sites(&g, &sp, &sq);
             let moved = len > 0.0;
             let turn = match (prev_arrive, moved) {
                 (Some(arr), true) => turning_angle(arr, azi1),
