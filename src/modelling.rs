@@ -23,10 +23,12 @@ use polars::prelude::*;
 
 use crate::hmm::design::{Design, RawColumn};
 use crate::hmm::error::HmmError;
+use crate::hmm::fit::{FitProgress, fit_objective_with_progress};
 use crate::hmm::inference::{ComparisonRow, compare};
 use crate::hmm::io::CovariateScaling;
 use crate::hmm::{
-    Data, Family, FitOptions, FittedModel, InitialDistribution, ModelSpec, Series, StreamSpec, fit,
+    Data, Family, FitOptions, FittedModel, InitialDistribution, ModelSpec, Objective, Series,
+    StreamSpec,
 };
 use crate::io::{self, WriteError};
 use crate::study::Study;
@@ -468,7 +470,8 @@ fn fit_inputs(study: &Study) -> Result<FitInputs<'_>, FitStageError> {
 
 /// Fits every candidate of the study and decodes the selected one.
 ///
-/// `progress` is called with a line of text before each candidate.
+/// `progress` is called with a line of text before each candidate, after each of its
+/// random starts and before its Hessian.
 ///
 /// # Errors
 /// [`FitStageError`] when the study has no `[model]`, the step table is missing or a term
@@ -507,17 +510,36 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
         let start = bases
             .get(&c.n_states)
             .map(|b| with_zero_covariates(b, c.n_states, covariates.len()));
+        let mut best: Option<f64> = None;
+        let mut on_progress = |p: FitProgress| match p {
+            FitProgress::StartDone { index, of, loglik } => {
+                if let Some(l) = loglik {
+                    best = Some(best.map_or(l, |b| b.max(l)));
+                }
+                progress(&format!(
+                    "fitting `{}`: start {} of {of} done{}",
+                    c.name,
+                    index + 1,
+                    best.map_or(String::new(), |b| format!(", best log L so far {b:.2}"))
+                ));
+            }
+            FitProgress::Hessian => progress(&format!(
+                "fitting `{}`: Hessian and standard errors at the best optimum",
+                c.name
+            )),
+        };
         let result = data_of(settings, &bounds, &step, &angle, &covariates, &values)
             .and_then(|data| {
-                fit(
-                    &spec,
-                    &data,
+                let obj = Objective::new(&spec, &data)?;
+                fit_objective_with_progress(
+                    &obj,
                     &FitOptions {
                         n_starts: settings.starts,
                         seed: settings.seed,
                         start,
                         ..FitOptions::default()
                     },
+                    &mut on_progress,
                 )
             })
             .map(|mut m| {

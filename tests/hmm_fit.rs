@@ -226,6 +226,48 @@ fn random_starts_really_restart() {
     assert_eq!(obj.start_values(Some(&mut rng2)), s1);
 }
 
+/// The progress hook hears of every start once, in order, with the log-likelihood the
+/// fit records for it, and then of the Hessian.
+#[test]
+fn progress_reports_each_start_then_the_hessian() {
+    use cairn::hmm::fit::{FitProgress, fit_objective_with_progress};
+    let (spec, params) = truth();
+    let model = Model::new(&spec, params).unwrap();
+    let drawn = model.simulate(&designs(2, 300, 3), 4).unwrap();
+    let obj = Objective::new(&spec, &drawn.data).unwrap();
+    let mut heard = Vec::new();
+    let opts = FitOptions {
+        n_starts: 3,
+        seed: 2,
+        ..FitOptions::default()
+    };
+    let f = fit_objective_with_progress(&obj, &opts, &mut |p| heard.push(p)).unwrap();
+    assert_eq!(heard.len(), 4, "{heard:?}");
+    for (k, (p, rec)) in heard.iter().zip(f.starts()).enumerate() {
+        assert_eq!(
+            *p,
+            FitProgress::StartDone {
+                index: k,
+                of: 3,
+                loglik: rec.loglik
+            }
+        );
+    }
+    assert_eq!(heard[3], FitProgress::Hessian);
+    // without a Hessian there is nothing to announce after the starts
+    let mut n = 0;
+    let no_h = FitOptions {
+        hessian: false,
+        ..opts
+    };
+    fit_objective_with_progress(&obj, &no_h, &mut |p| {
+        assert_ne!(p, FitProgress::Hessian);
+        n += 1;
+    })
+    .unwrap();
+    assert_eq!(n, 3);
+}
+
 // A non-identified model (two perfectly collinear covariates) must report a Hessian that
 // is not positive definite and name the collinear coefficients (ZML 2016, §3.6 on the
 // observed information).

@@ -409,67 +409,102 @@ pub fn fit(spec: &ModelSpec, data: &Data, opts: &FitOptions) -> Result<FittedMod
     fit_objective(&obj, opts)
 }
 
+/// What [`fit_objective_with_progress`] reports while it works.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum FitProgress {
+    /// Start `index` (0-based) of `of` has ended, with its log-likelihood (`None` when it
+    /// failed).
+    StartDone {
+        /// Which start.
+        index: usize,
+        /// How many starts there are.
+        of: usize,
+        /// Its final log-likelihood.
+        loglik: Option<f64>,
+    },
+    /// Every start has ended; the Hessian at the best optimum is being computed.
+    Hessian,
+}
+
 /// Fits with an already checked objective (see [`fit`]).
 ///
 /// # Errors
 /// As [`fit`].
 pub fn fit_objective(obj: &Objective, opts: &FitOptions) -> Result<FittedModel, HmmError> {
+    fit_objective_with_progress(obj, opts, &mut |_| {})
+}
+
+/// [`fit_objective`], calling `progress` after each start and before the Hessian.
+///
+/// # Errors
+/// As [`fit`].
+pub fn fit_objective_with_progress(
+    obj: &Objective,
+    opts: &FitOptions,
+    progress: &mut dyn FnMut(FitProgress),
+) -> Result<FittedModel, HmmError> {
+    let n_starts = opts.n_starts.max(1);
     let vspec = obj.valid_spec().clone();
     let mut rng = ChaCha8Rng::seed_from_u64(opts.seed);
     let mut starts = Vec::new();
     let mut best: Option<(usize, RunResult)> = None;
     let warm = obj.warmup(opts.warmup_min_steps);
-    for k in 0..opts.n_starts.max(1) {
+    for k in 0..n_starts {
         let params = match (k, &opts.start) {
             (0, Some(p)) => p.clone(),
             (0, None) => obj.start_values(None),
             _ => obj.start_values(Some(&mut rng)),
         };
-        let th0 = match vspec.to_working(&params) {
-            Ok(t) => t,
-            Err(e) => {
-                starts.push(StartRecord {
-                    index: k,
-                    loglik: None,
-                    iterations: 0,
-                    termination: "invalid start".into(),
-                    failure: Some(e.to_string()),
-                });
-                continue;
-            }
-        };
-        let th0 = match &warm {
-            Some(w) => run_lbfgs_tol(
-                w,
-                th0.clone(),
-                WARMUP_MAX_ITERS.min(opts.max_iters),
-                WARMUP_GRAD_TOL,
-                WARMUP_COST_TOL,
-            )
-            .map_or(th0, |r| r.theta),
-            None => th0,
-        };
-        match run_lbfgs(obj, th0, opts.max_iters) {
-            Ok(r) => {
-                starts.push(StartRecord {
-                    index: k,
-                    loglik: Some(r.loglik),
-                    iterations: r.iterations,
-                    termination: r.termination.clone(),
-                    failure: None,
-                });
-                if best.as_ref().is_none_or(|(_, b)| r.loglik > b.loglik) {
-                    best = Some((k, r));
-                }
-            }
-            Err(e) => starts.push(StartRecord {
+        let record = match vspec.to_working(&params) {
+            Err(e) => StartRecord {
                 index: k,
                 loglik: None,
                 iterations: 0,
-                termination: "failed".into(),
-                failure: Some(e),
-            }),
-        }
+                termination: "invalid start".into(),
+                failure: Some(e.to_string()),
+            },
+            Ok(th0) => {
+                let th0 = match &warm {
+                    Some(w) => run_lbfgs_tol(
+                        w,
+                        th0.clone(),
+                        WARMUP_MAX_ITERS.min(opts.max_iters),
+                        WARMUP_GRAD_TOL,
+                        WARMUP_COST_TOL,
+                    )
+                    .map_or(th0, |r| r.theta),
+                    None => th0,
+                };
+                match run_lbfgs(obj, th0, opts.max_iters) {
+                    Ok(r) => {
+                        let record = StartRecord {
+                            index: k,
+                            loglik: Some(r.loglik),
+                            iterations: r.iterations,
+                            termination: r.termination.clone(),
+                            failure: None,
+                        };
+                        if best.as_ref().is_none_or(|(_, b)| r.loglik > b.loglik) {
+                            best = Some((k, r));
+                        }
+                        record
+                    }
+                    Err(e) => StartRecord {
+                        index: k,
+                        loglik: None,
+                        iterations: 0,
+                        termination: "failed".into(),
+                        failure: Some(e),
+                    },
+                }
+            }
+        };
+        progress(FitProgress::StartDone {
+            index: k,
+            of: n_starts,
+            loglik: record.loglik,
+        });
+        starts.push(record);
     }
     let Some((_, best)) = best else {
         let why: Vec<String> = starts
@@ -497,6 +532,7 @@ pub fn fit_objective(obj: &Objective, opts: &FitOptions) -> Result<FittedModel, 
     let converged =
         best.solver_converged && gradient_norm <= prec::CONVERGED_GRAD * (n as f64).sqrt().max(1.0);
     let covariance = if opts.hessian {
+        progress(FitProgress::Hessian);
         hessian_covariance(obj, &theta)
     } else {
         Covariance::NotComputed
