@@ -49,7 +49,7 @@ fn main() {
                 let ObservationError::Class(c) = f.error else {
                     continue;
                 };
-                let sd = errors.get(c);
+                let sd = errors.get(c).expect("simulated classes are usable");
                 let major = sd.x_m.max(sd.y_m);
                 let minor = sd.x_m.min(sd.y_m);
                 f.error = ObservationError::Covariance(
@@ -122,7 +122,7 @@ fn main() {
             .map(|f| {
                 let error = match f.error {
                     ObservationError::Class(c) => {
-                        let sd = errors.get(c);
+                        let sd = errors.get(c).expect("simulated classes are usable");
                         ErrorCovariance::diagonal(sd.x_m, sd.y_m).unwrap()
                     }
                     ObservationError::Covariance(c) => c,

@@ -3,9 +3,10 @@
 
 mod regular_sim;
 
+use cairn::tracks::class::LocClass;
 use cairn::tracks::regular::{
-    ClassErrors, ConfigError, ErrorCovariance, Fix, LocationClass, ObservationError,
-    OutlierSettings, RegularError, RegularSettings, regularise, regularise_many,
+    ClassErrors, ConfigError, ErrorCovariance, Fix, ObservationError, OutlierSettings,
+    RegularError, RegularSettings, regularise, regularise_many,
 };
 use regular_sim::{START_S, simulate};
 
@@ -179,7 +180,7 @@ fn fix(time: f64, x: f64) -> Fix {
         time,
         x,
         y: 0.0,
-        error: ObservationError::Class(LocationClass::Gps),
+        error: ObservationError::Class(LocClass::Gps),
     }
 }
 
@@ -346,7 +347,7 @@ fn motionless_animal_gives_locations_but_no_standard_errors() {
             time: START_S + 900.0 * i as f64,
             x: 1_000.0,
             y: 2_000.0,
-            error: ObservationError::Class(LocationClass::Argos1),
+            error: ObservationError::Class(LocClass::Argos1),
         })
         .collect();
     let track = regularise(&fixes, &RegularSettings::default().validate().unwrap()).unwrap();

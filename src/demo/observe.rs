@@ -23,7 +23,7 @@ use rand_distr::{Distribution, Exp, Normal, StudentT};
 use super::movement::TrueTrack;
 use super::truth::PlantedFault;
 use crate::geo::proj::Projection;
-use crate::tracks::regular::{ClassErrors, LocationClass};
+use crate::tracks::regular::ClassErrors;
 
 /// Tag carried by an animal.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -110,15 +110,15 @@ fn argos_class(rng: &mut ChaCha8Rng) -> &'static str {
 /// Error standard deviations (east, north) of an Argos class, metres.
 fn argos_sd(class: &str) -> (f64, f64) {
     let e = ClassErrors::default();
-    let c = match class {
-        "3" => LocationClass::Argos3,
-        "2" => LocationClass::Argos2,
-        "1" => LocationClass::Argos1,
-        "0" => LocationClass::Argos0,
-        "A" => LocationClass::ArgosA,
-        _ => LocationClass::ArgosB,
+    // Class Z has no entry in the table; it takes B's, scaled below.
+    let sd = match class {
+        "3" => e.argos3,
+        "2" => e.argos2,
+        "1" => e.argos1,
+        "0" => e.argos0,
+        "A" => e.argos_a,
+        _ => e.argos_b,
     };
-    let sd = e.get(c);
     let z = if class == "Z" { 3.0 } else { 1.0 };
     (sd.x_m * z, sd.y_m * z)
 }

@@ -571,7 +571,7 @@ fn resolve_grid(
     g: &raw::RawGrid,
     gap_s: f64,
 ) -> Result<crate::tracks::regular::RegularSettings, StudyError> {
-    use crate::tracks::regular::{AxisSd, LocationClass, OutlierSettings, RegularSettings};
+    use crate::tracks::regular::{AxisSd, OutlierSettings, RegularSettings};
     let mut s = RegularSettings {
         interval_s: units::parse_duration("grid.interval", &g.interval)?,
         gap_threshold_s: gap_s,
@@ -610,8 +610,9 @@ fn resolve_grid(
     }
     for (code, sd) in &g.class_errors {
         let key = format!("grid.class_errors.{code}");
-        let class = LocClass::parse(code)
-            .and_then(LocationClass::from_fix_class)
+        // The error table has no entry for Argos Z, so `get_mut` rejects it here.
+        let slot = LocClass::parse(code)
+            .and_then(|c| s.class_errors.get_mut(c))
             .ok_or_else(|| {
                 invalid(
                     &key,
@@ -628,7 +629,7 @@ fn resolve_grid(
                 y_m: units::parse_distance(&key, y)?,
             },
         };
-        s.class_errors.set(class, axis);
+        *slot = axis;
     }
     Ok(s)
 }

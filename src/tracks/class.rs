@@ -113,6 +113,11 @@ impl LocClass {
         }
     }
 
+    /// Position in [`LocClass::ALL`], for per-class tallies.
+    pub(crate) fn index(self) -> usize {
+        self as usize
+    }
+
     /// Whether fixes of this class are usable (everything except Argos Z).
     pub fn is_valid(self) -> bool {
         self != LocClass::ArgosZ
@@ -152,6 +157,13 @@ mod tests {
     fn every_code_round_trips() {
         for c in LocClass::ALL {
             assert_eq!(LocClass::parse(c.code()), Some(c));
+        }
+    }
+
+    #[test]
+    fn index_is_the_position_in_all() {
+        for (i, c) in LocClass::ALL.into_iter().enumerate() {
+            assert_eq!(c.index(), i);
         }
     }
 

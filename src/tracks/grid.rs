@@ -15,9 +15,7 @@ use serde::Serialize;
 
 use super::clean::Track;
 use super::metrics::{Path, PathPoint};
-use super::regular::{
-    self, ErrorCovariance, LocationClass, ObservationError, RegularConfig, RegularTrack,
-};
+use super::regular::{self, ErrorCovariance, ObservationError, RegularConfig, RegularTrack};
 use crate::geo::proj::Projection;
 
 /// The smoother's account of one animal, written to the prepare summary.
@@ -88,20 +86,6 @@ pub struct Smoothed {
     pub records: Vec<SmootherRecord>,
 }
 
-/// Code of a smoother class, as in the fixes table.
-fn class_code(c: LocationClass) -> &'static str {
-    match c {
-        LocationClass::Gps => "GPS",
-        LocationClass::FastlocGps => "FGPS",
-        LocationClass::Argos3 => "3",
-        LocationClass::Argos2 => "2",
-        LocationClass::Argos1 => "1",
-        LocationClass::Argos0 => "0",
-        LocationClass::ArgosA => "A",
-        LocationClass::ArgosB => "B",
-    }
-}
-
 /// Semi-major axis of the ellipse of a 2 × 2 covariance: the square root of its larger
 /// eigenvalue.
 fn semi_major(xx: f64, xy: f64, yy: f64) -> f64 {
@@ -156,10 +140,8 @@ fn smooth_track(
             });
         let error = match ellipse {
             Some(c) => ObservationError::Covariance(c),
-            None => match LocationClass::from_fix_class(f.class) {
-                Some(c) => ObservationError::Class(c),
-                None => return Err(("Argos class Z fix reached the smoother".into(), label)),
-            },
+            None if f.class.is_valid() => ObservationError::Class(f.class),
+            None => return Err(("Argos class Z fix reached the smoother".into(), label)),
         };
         fixes.push(regular::Fix {
             time: f.time_us as f64 * 1e-6,
@@ -273,7 +255,7 @@ pub fn smooth_with_progress(
                 .by_class()
                 .iter()
                 .filter(|(_, n)| *n > 0)
-                .map(|(c, n)| (class_code(*c).to_string(), *n))
+                .map(|(c, n)| (c.code().to_string(), *n))
                 .collect(),
             fixes_with_ellipse: counts.with_covariance(),
             grid_points: points.len(),

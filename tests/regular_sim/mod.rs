@@ -9,7 +9,8 @@
 
 #![allow(dead_code)]
 
-use cairn::tracks::regular::{ClassErrors, Fix, LocationClass, ObservationError};
+use cairn::tracks::class::LocClass;
+use cairn::tracks::regular::{ClassErrors, Fix, ObservationError};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Exp, Normal};
@@ -41,15 +42,15 @@ impl Simulated {
 }
 
 /// Class mix used by the tests: mostly Argos with some GPS.
-pub const MIX: [(LocationClass, f64); 8] = [
-    (LocationClass::Gps, 0.10),
-    (LocationClass::FastlocGps, 0.10),
-    (LocationClass::Argos3, 0.15),
-    (LocationClass::Argos2, 0.15),
-    (LocationClass::Argos1, 0.15),
-    (LocationClass::Argos0, 0.05),
-    (LocationClass::ArgosA, 0.15),
-    (LocationClass::ArgosB, 0.15),
+pub const MIX: [(LocClass, f64); 8] = [
+    (LocClass::Gps, 0.10),
+    (LocClass::FastlocGps, 0.10),
+    (LocClass::Argos3, 0.15),
+    (LocClass::Argos2, 0.15),
+    (LocClass::Argos1, 0.15),
+    (LocClass::Argos0, 0.05),
+    (LocClass::ArgosA, 0.15),
+    (LocClass::ArgosB, 0.15),
 ];
 
 /// Simulate one animal: `n_fixes` fixes at exponential gaps of mean `mean_gap_s`
@@ -105,7 +106,7 @@ pub fn simulate(
                     break;
                 }
             }
-            let sd = errors.get(class);
+            let sd = errors.get(class).expect("MIX holds usable classes only");
             let (tx, ty) = truth[k];
             Fix {
                 time: START_S + k as f64 * FINE_STEP_S,

@@ -42,9 +42,10 @@ use serde::{Deserialize, Serialize};
 pub use kalman::{
     Epoch, FilterFailure, Observation, SmootherOutput, StatePrior, filter_smooth, log_likelihood,
 };
-pub use observation::{AxisSd, ClassErrors, ErrorCovariance, LocationClass, ObservationError};
+pub use observation::{AxisSd, ClassErrors, ErrorCovariance, ObservationError};
 pub use process::{AxisStep, ProcessParams, axis_step};
 
+use crate::tracks::class::LocClass;
 use fit::{FitOutcome, Problem, SegmentData};
 
 /// Fewest fix-to-fix intervals inside segments for which a fit is attempted: two
@@ -122,6 +123,17 @@ pub enum RegularError {
         name: &'static str,
         /// Its value.
         value: f64,
+    },
+    /// A fix's location class has no observation error (Argos class Z; cleaning drops
+    /// those fixes before smoothing).
+    #[error(
+        "fix {index} has location class {class}, which has no observation error; drop Argos class Z fixes before smoothing"
+    )]
+    UnusableClass {
+        /// Index of the offending fix.
+        index: usize,
+        /// Its class.
+        class: LocClass,
     },
     /// The likelihood could not be maximised or evaluated.
     #[error("the likelihood could not be maximised: {reason}")]
@@ -204,8 +216,7 @@ impl RegularSettings {
             ("se_flag_m".into(), self.se_flag_m),
             ("position_prior_sd_m".into(), self.position_prior_sd_m),
         ];
-        for class in LocationClass::ALL {
-            let sd = self.class_errors.get(class);
+        for (class, sd) in self.class_errors.iter() {
             checks.push((format!("class_errors.{class:?}.x_m"), sd.x_m));
             checks.push((format!("class_errors.{class:?}.y_m"), sd.y_m));
         }
@@ -254,13 +265,13 @@ pub struct Fix {
 /// Number of fixes used in the fit, per location class and with their own covariance.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct FixCounts {
-    by_class: Vec<(LocationClass, usize)>,
+    by_class: Vec<(LocClass, usize)>,
     with_covariance: usize,
 }
 
 impl FixCounts {
     fn count(fixes: &[Fix]) -> Self {
-        let mut per = [0usize; LocationClass::ALL.len()];
+        let mut per = [0usize; LocClass::ALL.len()];
         let mut with_covariance = 0;
         for f in fixes {
             match f.error {
@@ -269,7 +280,7 @@ impl FixCounts {
             }
         }
         Self {
-            by_class: LocationClass::ALL
+            by_class: LocClass::ALL
                 .iter()
                 .zip(per)
                 .filter(|(_, n)| *n > 0)
@@ -280,7 +291,7 @@ impl FixCounts {
     }
 
     /// (class, count) for every class present, best class first.
-    pub fn by_class(&self) -> &[(LocationClass, usize)] {
+    pub fn by_class(&self) -> &[(LocClass, usize)] {
         &self.by_class
     }
     /// Fixes whose error came as an explicit covariance.
@@ -520,10 +531,13 @@ fn check_and_split(fixes: &[Fix], gap: f64) -> Result<Vec<(usize, usize)>, Regul
     Ok(bounds)
 }
 
-fn observation(fix: &Fix, errors: &ClassErrors) -> Result<Observation, RegularError> {
+/// The observation of a fix; `index` is its position in the input, for the error.
+fn observation(fix: &Fix, index: usize, errors: &ClassErrors) -> Result<Observation, RegularError> {
     let error = match fix.error {
-        ObservationError::Class(c) => {
-            let sd = errors.get(c);
+        ObservationError::Class(class) => {
+            let sd = errors
+                .get(class)
+                .ok_or(RegularError::UnusableClass { index, class })?;
             ErrorCovariance::diagonal(sd.x_m, sd.y_m)?
         }
         ObservationError::Covariance(c) => ErrorCovariance::new(c.xx(), c.xy(), c.yy())?,
@@ -560,10 +574,11 @@ fn prepare(fixes: &[Fix], keep: &[bool], config: &RegularConfig) -> Result<Prepa
     for (a, b) in bounds {
         let epochs = kept_fixes[a..b]
             .iter()
-            .map(|f| {
+            .enumerate()
+            .map(|(j, f)| {
                 Ok(Epoch {
                     time: f.time,
-                    observation: Some(observation(f, &config.settings.class_errors)?),
+                    observation: Some(observation(f, kept[a + j], &config.settings.class_errors)?),
                 })
             })
             .collect::<Result<Vec<_>, RegularError>>()?;
@@ -624,17 +639,18 @@ fn filter_failure(f: FilterFailure) -> RegularError {
 ///
 /// # Errors
 /// [`RegularError`] when the fixes are unusable (too few, one instant, unsorted,
-/// non-finite, bad covariance) or the likelihood cannot be maximised.
+/// non-finite, bad covariance, Argos class Z) or the likelihood cannot be maximised.
 ///
 /// # Examples
 /// ```
-/// use cairn::tracks::regular::{Fix, LocationClass, ObservationError, RegularSettings, regularise};
+/// use cairn::tracks::class::LocClass;
+/// use cairn::tracks::regular::{Fix, ObservationError, RegularSettings, regularise};
 /// let fixes: Vec<Fix> = (0..40)
 ///     .map(|i| {
 ///         let t = 1_700_000_000.0 + 1_800.0 * i as f64;
 ///         let wiggle = if i % 2 == 0 { 150.0 } else { -150.0 };
 ///         Fix { time: t, x: 500.0 * i as f64 + wiggle, y: 100.0 * i as f64 - wiggle,
-///               error: ObservationError::Class(LocationClass::Argos2) }
+///               error: ObservationError::Class(LocClass::Argos2) }
 ///     })
 ///     .collect();
 /// let config = RegularSettings::default().validate().unwrap();
@@ -794,4 +810,30 @@ where
         .par_iter()
         .map(|a| regularise(a.as_ref(), config))
         .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn an_argos_z_fix_is_rejected_naming_the_fix() {
+        let mut fixes: Vec<Fix> = (0..20)
+            .map(|i| Fix {
+                time: 1_700_000_000.0 + 1_800.0 * i as f64,
+                x: 500.0 * i as f64,
+                y: 0.0,
+                error: ObservationError::Class(LocClass::Argos2),
+            })
+            .collect();
+        fixes[7].error = ObservationError::Class(LocClass::ArgosZ);
+        let config = RegularSettings::default().validate().unwrap();
+        assert_eq!(
+            regularise(&fixes, &config).unwrap_err(),
+            RegularError::UnusableClass {
+                index: 7,
+                class: LocClass::ArgosZ
+            }
+        );
+    }
 }

@@ -4,66 +4,17 @@
 //! Class-based errors are independent on x and y (a diagonal covariance with the class's
 //! two standard deviations); an error ellipse gives a full covariance whose off-diagonal
 //! term couples the axes, which the filter handles with a joint two-dimensional update.
+//!
+//! Classes are the fixes' own [`LocClass`]. The error table ([`ClassErrors`]) has one
+//! entry per usable class and none for Argos class Z: those locations failed the
+//! operator's plausibility checks and cleaning drops them before smoothing, so a look-up
+//! for Z returns `None` and [`regularise`](super::regularise) rejects such a fix with
+//! [`RegularError::UnusableClass`].
 
 use serde::{Deserialize, Serialize};
 
 use super::RegularError;
-
-/// Where a fix came from; decides its error standard deviations.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
-pub enum LocationClass {
-    /// GPS fix.
-    Gps,
-    /// Fastloc-GPS fix (snapshot GPS solved on shore).
-    FastlocGps,
-    /// Argos class 3.
-    Argos3,
-    /// Argos class 2.
-    Argos2,
-    /// Argos class 1.
-    Argos1,
-    /// Argos class 0.
-    Argos0,
-    /// Argos class A.
-    ArgosA,
-    /// Argos class B.
-    ArgosB,
-}
-
-impl LocationClass {
-    /// Every class, best first.
-    pub const ALL: [LocationClass; 8] = [
-        LocationClass::Gps,
-        LocationClass::FastlocGps,
-        LocationClass::Argos3,
-        LocationClass::Argos2,
-        LocationClass::Argos1,
-        LocationClass::Argos0,
-        LocationClass::ArgosA,
-        LocationClass::ArgosB,
-    ];
-
-    pub(crate) fn index(self) -> usize {
-        self as usize
-    }
-
-    /// The smoother's class of a cleaned fix; `None` for Argos class Z, which cleaning
-    /// has already removed.
-    pub fn from_fix_class(c: crate::tracks::class::LocClass) -> Option<LocationClass> {
-        use crate::tracks::class::LocClass as L;
-        Some(match c {
-            L::Gps => LocationClass::Gps,
-            L::FastlocGps => LocationClass::FastlocGps,
-            L::Argos3 => LocationClass::Argos3,
-            L::Argos2 => LocationClass::Argos2,
-            L::Argos1 => LocationClass::Argos1,
-            L::Argos0 => LocationClass::Argos0,
-            L::ArgosA => LocationClass::ArgosA,
-            L::ArgosB => LocationClass::ArgosB,
-            L::ArgosZ => return None,
-        })
-    }
-}
+use crate::tracks::class::LocClass;
 
 /// A symmetric 2 × 2 observation-error covariance (m²) on the projected x (east) and y
 /// (north) axes.
@@ -192,8 +143,8 @@ impl ErrorCovariance {
 /// [`ClassErrors`]) or its own covariance.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub enum ObservationError {
-    /// Use the class's standard deviations.
-    Class(LocationClass),
+    /// Use the class's standard deviations (any class but Argos Z, which has none).
+    Class(LocClass),
     /// Use this covariance (e.g. from [`ErrorCovariance::from_ellipse`]).
     Covariance(ErrorCovariance),
 }
@@ -257,32 +208,80 @@ impl Default for ClassErrors {
 }
 
 impl ClassErrors {
-    /// The standard deviations of one class.
-    pub fn get(&self, class: LocationClass) -> AxisSd {
-        match class {
-            LocationClass::Gps => self.gps,
-            LocationClass::FastlocGps => self.fastloc_gps,
-            LocationClass::Argos3 => self.argos3,
-            LocationClass::Argos2 => self.argos2,
-            LocationClass::Argos1 => self.argos1,
-            LocationClass::Argos0 => self.argos0,
-            LocationClass::ArgosA => self.argos_a,
-            LocationClass::ArgosB => self.argos_b,
-        }
+    /// The standard deviations of one class; `None` for Argos class Z, which has no
+    /// entry (cleaning drops it before smoothing).
+    ///
+    /// # Examples
+    /// ```
+    /// use cairn::tracks::class::LocClass;
+    /// use cairn::tracks::regular::ClassErrors;
+    /// let errors = ClassErrors::default();
+    /// assert_eq!(errors.get(LocClass::Gps).map(|sd| sd.x_m), Some(30.0));
+    /// assert_eq!(errors.get(LocClass::ArgosZ), None);
+    /// ```
+    pub fn get(&self, class: LocClass) -> Option<AxisSd> {
+        Some(match class {
+            LocClass::Gps => self.gps,
+            LocClass::FastlocGps => self.fastloc_gps,
+            LocClass::Argos3 => self.argos3,
+            LocClass::Argos2 => self.argos2,
+            LocClass::Argos1 => self.argos1,
+            LocClass::Argos0 => self.argos0,
+            LocClass::ArgosA => self.argos_a,
+            LocClass::ArgosB => self.argos_b,
+            LocClass::ArgosZ => return None,
+        })
     }
 
-    /// Replaces the standard deviations of one class.
-    pub fn set(&mut self, class: LocationClass, sd: AxisSd) {
-        let slot = match class {
-            LocationClass::Gps => &mut self.gps,
-            LocationClass::FastlocGps => &mut self.fastloc_gps,
-            LocationClass::Argos3 => &mut self.argos3,
-            LocationClass::Argos2 => &mut self.argos2,
-            LocationClass::Argos1 => &mut self.argos1,
-            LocationClass::Argos0 => &mut self.argos0,
-            LocationClass::ArgosA => &mut self.argos_a,
-            LocationClass::ArgosB => &mut self.argos_b,
-        };
-        *slot = sd;
+    /// The standard deviations of one class, to change them; `None` for Argos class Z,
+    /// which has no entry.
+    pub fn get_mut(&mut self, class: LocClass) -> Option<&mut AxisSd> {
+        Some(match class {
+            LocClass::Gps => &mut self.gps,
+            LocClass::FastlocGps => &mut self.fastloc_gps,
+            LocClass::Argos3 => &mut self.argos3,
+            LocClass::Argos2 => &mut self.argos2,
+            LocClass::Argos1 => &mut self.argos1,
+            LocClass::Argos0 => &mut self.argos0,
+            LocClass::ArgosA => &mut self.argos_a,
+            LocClass::ArgosB => &mut self.argos_b,
+            LocClass::ArgosZ => return None,
+        })
+    }
+
+    /// Every entry, best class first: one per usable class (all but Argos Z).
+    pub fn iter(&self) -> impl Iterator<Item = (LocClass, AxisSd)> + '_ {
+        LocClass::ALL
+            .into_iter()
+            .filter_map(|c| self.get(c).map(|sd| (c, sd)))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_table_has_an_entry_for_every_usable_class_and_none_for_z() {
+        let mut errors = ClassErrors::default();
+        for c in LocClass::ALL {
+            assert_eq!(errors.get(c).is_some(), c.is_valid(), "{c:?}");
+            assert_eq!(errors.get_mut(c).is_some(), c.is_valid(), "{c:?}");
+        }
+        let classes: Vec<LocClass> = errors.iter().map(|(c, _)| c).collect();
+        let usable: Vec<LocClass> = LocClass::ALL.into_iter().filter(|c| c.is_valid()).collect();
+        assert_eq!(classes, usable);
+    }
+
+    #[test]
+    fn get_mut_changes_only_its_class() {
+        let mut errors = ClassErrors::default();
+        let sd = AxisSd { x_m: 7.0, y_m: 8.0 };
+        *errors.get_mut(LocClass::Argos1).unwrap() = sd;
+        assert_eq!(errors.get(LocClass::Argos1), Some(sd));
+        assert_eq!(
+            errors.get(LocClass::Argos2),
+            ClassErrors::default().get(LocClass::Argos2)
+        );
     }
 }
