@@ -116,7 +116,16 @@ fn short_line(a: &Site, b: &Site) -> Option<(f64, f64, f64)> {
     Some((s, (az1 - turn).to_degrees(), (az2 - turn).to_degrees()))
 }
 
-/// [`inverse_sites`] for two points given as degrees.
+/// Geodesic length (m) and departure/arrival azimuths (degrees) from point 1 to point 2
+/// on WGS84, given as degrees ([`inverse_sites`] for one line).
+///
+/// # Examples
+/// ```
+/// // One degree of longitude along the equator: a·π/180 with a = 6 378 137 m.
+/// let (s, a1, a2) = cairn::geo::geodesic::inverse(0.0, 0.0, 1.0, 0.0);
+/// assert!((s - 111_319.490_793).abs() < 1e-5);
+/// assert!((a1 - 90.0).abs() < 1e-12 && (a2 - 90.0).abs() < 1e-12);
+/// ```
 pub fn inverse(lon1: f64, lat1: f64, lon2: f64, lat2: f64) -> (f64, f64, f64) {
     inverse_sites(
         &Geodesic::wgs84(),

@@ -322,7 +322,7 @@ pub fn clean_animal(
     }
     let mut own = Vec::new();
     for f in fixes.iter_mut().filter(|f| f.ellipse != NO_ELLIPSE) {
-        if let Some(e) = ellipses.get(f.ellipse as usize) {
+        if let Some(e) = ellipse_of(f, ellipses) {
             own.push(*e);
             f.ellipse = own.len() as u32 - 1;
         } else {

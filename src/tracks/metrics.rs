@@ -82,18 +82,7 @@ pub fn wrap_deg(x: f64) -> f64 {
     if w == -180.0 { 180.0 } else { w }
 }
 
-/// Geodesic length (m) and departure/arrival azimuths (degrees) from 1 to 2 on WGS84.
-///
-/// # Examples
-/// ```
-/// // One degree of longitude along the equator: a·π/180 with a = 6 378 137 m.
-/// let (s, a1, a2) = cairn::tracks::metrics::inverse(0.0, 0.0, 1.0, 0.0);
-/// assert!((s - 111_319.490_793).abs() < 1e-5);
-/// assert!((a1 - 90.0).abs() < 1e-12 && (a2 - 90.0).abs() < 1e-12);
-/// ```
-pub fn inverse(lon1: f64, lat1: f64, lon2: f64, lat2: f64) -> (f64, f64, f64) {
-    crate::geo::geodesic::inverse(lon1, lat1, lon2, lat2)
-}
+pub use crate::geo::geodesic::inverse;
 
 /// Turning angle (radians, (−π, π], positive left) between a step arriving with azimuth
 /// `arrive_deg` and the next step departing with azimuth `depart_deg`.
@@ -351,15 +340,13 @@ fn path_steps<'p, P: Located + 'p>(
     let mut r = 0usize;
     for (seg_no, seg) in segments.enumerate() {
         let mut prev_arrive: Option<f64> = None;
-        let mut next_site = seg.first().map(|p| Site::new(p.lon(), p.lat()));
+        let Some(first) = seg.first() else { continue };
+        let mut sp = Site::new(first.lon(), first.lat());
         for w in seg.windows(2) {
             let (p, q) = (&w[0], &w[1]);
-            let (sp, sq) = (
-                next_site.expect("set before the loop and at each step"),
-                Site::new(q.lon(), q.lat()),
-            );
-            next_site = Some(sq);
+            let sq = Site::new(q.lon(), q.lat());
             let (len, azi1, azi2) = inverse_sites(&g, &sp, &sq);
+            sp = sq;
             let moved = len > 0.0;
             let turn = match (prev_arrive, moved) {
                 (Some(arr), true) => turning_angle(arr, azi1),
