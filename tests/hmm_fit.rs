@@ -208,6 +208,64 @@ fn warm_up_reaches_the_same_optimum() {
     }
 }
 
+// A start whose warm-up ends where an earlier one's did shares that start's full-data
+// run; run in full, it would have ended at the same optimum (same log L to the
+// tolerance that defines "the same optimum"). Checked against the same fit with every
+// start run in full.
+#[test]
+fn shared_full_runs_end_where_their_own_would() {
+    let (spec, params) = truth();
+    let model = Model::new(&spec, params).unwrap();
+    let drawn = model.simulate(&designs(8, 1500, 3), 4).unwrap();
+    let run = |share_full_runs: bool| {
+        let opts = FitOptions {
+            n_starts: 5,
+            seed: 5,
+            hessian: false,
+            warmup_min_steps: 0,
+            share_full_runs,
+            ..FitOptions::default()
+        };
+        fit(&spec, &drawn.data, &opts).unwrap()
+    };
+    let on = run(true);
+    let off = run(false);
+    assert_eq!(off.convergence().n_shared, 0);
+    assert!(off.starts().iter().all(|s| s.shared_with.is_none()));
+    let shared: Vec<_> = on
+        .starts()
+        .iter()
+        .filter(|s| s.shared_with.is_some())
+        .collect();
+    assert_eq!(on.convergence().n_shared, shared.len());
+    assert!(
+        !shared.is_empty(),
+        "no start shared a run: {:?}",
+        on.starts()
+    );
+    for s in shared {
+        let j = s.shared_with.unwrap();
+        assert!(j < s.index);
+        let first = &on.starts()[j];
+        assert!(first.shared_with.is_none() && first.failure.is_none());
+        assert_eq!(s.loglik, first.loglik);
+        assert_eq!(s.iterations, 0);
+        let own = off.starts()[s.index].loglik.unwrap();
+        assert!(
+            (own - s.loglik.unwrap()).abs() < 1e-4,
+            "start {}: own run {own}, shared {:?}",
+            s.index,
+            s.loglik
+        );
+    }
+    // the unshared starts ran exactly as without sharing
+    for s in on.starts().iter().filter(|s| s.shared_with.is_none()) {
+        assert_eq!(s, &off.starts()[s.index]);
+    }
+    assert!((on.loglik() - off.loglik()).abs() < 1e-4);
+    assert!(on.convergence().evaluations < off.convergence().evaluations);
+}
+
 #[test]
 fn random_starts_really_restart() {
     let (spec, params) = truth();

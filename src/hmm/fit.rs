@@ -21,6 +21,16 @@
 //! warm-up that fails leaves the start as it was. Its evaluations are reported apart
 //! ([`Convergence::warmup_evaluations`], each on a tenth of the steps).
 //!
+//! Shared full-data runs: random starts mostly fall into a few basins, and their
+//! warm-ups then end at the same few points. A start whose warm-up ends at the same
+//! warm-up optimum as an earlier start's (states put in the documented order first;
+//! limits [`WARMUP_SAME_LOGLIK`] and [`WARMUP_SAME_PARAM`]) does not repeat the
+//! full-data run: L-BFGS would start from the same point, up to the warm-up's own
+//! tolerance, and end where the earlier run ended. Its record says so
+//! ([`StartRecord::shared_with`]), carries that run's log-likelihood and counts in
+//! [`Convergence::n_shared`]. Only warm-ups are compared, so every distinct basin found
+//! still gets its own full-data run; without a warm-up (small data) every start runs.
+//!
 //! # Formula
 //! L-BFGS: Nocedal & Wright (2006), *Numerical Optimization*, 2nd ed., Alg. 7.5; line
 //! search: Moré & Thuente (1994), ACM TOMS 20(3), 286–307. AIC = −2 log L + 2k,
@@ -67,6 +77,14 @@ pub struct FitOptions {
     /// [`WARMUP_MIN_STEPS`].
     #[serde(default = "default_warmup_min_steps")]
     pub warmup_min_steps: usize,
+    /// Let a start whose warm-up ends where an earlier start's did share that start's
+    /// full-data run (see the module docs). Default true; false runs every start in full.
+    #[serde(default = "default_share_full_runs")]
+    pub share_full_runs: bool,
+}
+
+fn default_share_full_runs() -> bool {
+    true
 }
 
 fn default_warmup_min_steps() -> usize {
@@ -82,6 +100,7 @@ impl Default for FitOptions {
             start: None,
             hessian: true,
             warmup_min_steps: WARMUP_MIN_STEPS,
+            share_full_runs: true,
         }
     }
 }
@@ -96,6 +115,11 @@ pub struct StartRecord {
     pub termination: String,
     /// Why the start failed, if it did.
     pub failure: Option<String>,
+    /// The earlier start whose full-data run this one shares: its warm-up ended at the
+    /// same warm-up optimum (see the module docs), so its full-data run would start
+    /// where that start's did.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub shared_with: Option<usize>,
 }
 
 /// Convergence record of the selected (best) run.
@@ -112,6 +136,11 @@ pub struct Convergence {
     pub n_at_best: usize,
     /// Log-likelihood + gradient evaluations over all starts (full data).
     pub evaluations: usize,
+    /// Starts that shared an earlier start's full-data run because their warm-ups ended
+    /// at the same optimum (see the module docs); included in `n_at_best` when that run
+    /// is the best.
+    #[serde(default)]
+    pub n_shared: usize,
     /// Evaluations of the warm-ups on a part of the data (see the module docs), each
     /// over about 1/[`WARMUP_FRACTION`] of the steps.
     #[serde(default)]
@@ -314,6 +343,18 @@ const WARMUP_GRAD_TOL: f64 = 1e-5;
 /// Cost tolerance of the warm-up (mean per step, as [`prec::OPTIM_COST_TOL`]).
 const WARMUP_COST_TOL: f64 = 1e-10;
 
+/// Two warm-ups ended at the same optimum when their warm-up log-likelihoods differ by
+/// less than [`WARMUP_SAME_LOGLIK`] and no working parameter (states in the documented
+/// order) differs by more than [`WARMUP_SAME_PARAM`]. The warm-up stops at a loose
+/// tolerance ([`WARMUP_GRAD_TOL`]), so runs that found the same optimum end apart by up
+/// to ~2e-3 in the parameters and ~2e-4 in log L (measured on the W1 benchmark, 10
+/// starts), while distinct optima there differ by hundreds; the limits sit about five
+/// times above the first.
+const WARMUP_SAME_LOGLIK: f64 = 1e-3;
+
+/// See [`WARMUP_SAME_LOGLIK`].
+const WARMUP_SAME_PARAM: f64 = 1e-2;
+
 /// Iteration cap of the warm-up.
 const WARMUP_MAX_ITERS: u64 = 300;
 
@@ -449,6 +490,8 @@ pub fn fit_objective_with_progress(
     let mut starts = Vec::new();
     let mut best: Option<(usize, RunResult)> = None;
     let warm = obj.warmup(opts.warmup_min_steps);
+    // distinct warm-up optima so far, each with the start that reached it first
+    let mut warm_ends: Vec<WarmEnd> = Vec::new();
     for k in 0..n_starts {
         let params = match (k, &opts.start) {
             (0, Some(p)) => p.clone(),
@@ -462,39 +505,80 @@ pub fn fit_objective_with_progress(
                 iterations: 0,
                 termination: "invalid start".into(),
                 failure: Some(e.to_string()),
+                shared_with: None,
             },
             Ok(th0) => {
+                // warm-up, then the full-data run, unless the warm-up ended where an
+                // earlier start's did and that start's full-data run succeeded
+                let mut shared = None;
                 let th0 = match &warm {
-                    Some(w) => run_lbfgs_tol(
+                    Some(w) => match run_lbfgs_tol(
                         w,
                         th0.clone(),
                         WARMUP_MAX_ITERS.min(opts.max_iters),
                         WARMUP_GRAD_TOL,
                         WARMUP_COST_TOL,
-                    )
-                    .map_or(th0, |r| r.theta),
+                    ) {
+                        Ok(r) => {
+                            let canon = canonical(&vspec, &r.theta);
+                            shared = warm_ends.iter().find_map(|e| {
+                                let same = (e.loglik - r.loglik).abs() < WARMUP_SAME_LOGLIK
+                                    && canon.as_ref().zip(e.canon.as_ref()).is_some_and(
+                                        |(a, b)| max_abs_diff(a, b) <= WARMUP_SAME_PARAM,
+                                    );
+                                let ok = starts.iter().any(|s: &StartRecord| {
+                                    s.index == e.start && s.loglik.is_some()
+                                });
+                                (opts.share_full_runs && same && ok).then_some(e.start)
+                            });
+                            if shared.is_none() {
+                                warm_ends.push(WarmEnd {
+                                    start: k,
+                                    loglik: r.loglik,
+                                    canon,
+                                });
+                            }
+                            r.theta
+                        }
+                        Err(_) => th0,
+                    },
                     None => th0,
                 };
-                match run_lbfgs(obj, th0, opts.max_iters) {
-                    Ok(r) => {
-                        let record = StartRecord {
-                            index: k,
-                            loglik: Some(r.loglik),
-                            iterations: r.iterations,
-                            termination: r.termination.clone(),
-                            failure: None,
-                        };
-                        if best.as_ref().is_none_or(|(_, b)| r.loglik > b.loglik) {
-                            best = Some((k, r));
-                        }
-                        record
-                    }
-                    Err(e) => StartRecord {
+                match shared {
+                    Some(j) => StartRecord {
                         index: k,
-                        loglik: None,
+                        loglik: starts.iter().find(|s| s.index == j).and_then(|s| s.loglik),
                         iterations: 0,
-                        termination: "failed".into(),
-                        failure: Some(e),
+                        termination: format!(
+                            "same warm-up optimum as start {}: shares its full-data run",
+                            j + 1
+                        ),
+                        failure: None,
+                        shared_with: Some(j),
+                    },
+                    None => match run_lbfgs(obj, th0, opts.max_iters) {
+                        Ok(r) => {
+                            let record = StartRecord {
+                                index: k,
+                                loglik: Some(r.loglik),
+                                iterations: r.iterations,
+                                termination: r.termination.clone(),
+                                failure: None,
+                                shared_with: None,
+                            };
+                            if best.as_ref().is_none_or(|(_, b)| r.loglik > b.loglik) {
+                                best = Some((k, r));
+                            }
+                            record
+                        }
+                        Err(e) => StartRecord {
+                            index: k,
+                            loglik: None,
+                            iterations: 0,
+                            termination: "failed".into(),
+                            failure: Some(e),
+                            shared_with: None,
+                        },
                     },
                 }
             }
@@ -545,6 +629,7 @@ pub fn fit_objective_with_progress(
         n_starts: starts.len(),
         n_failed,
         n_at_best,
+        n_shared: starts.iter().filter(|s| s.shared_with.is_some()).count(),
         evaluations: obj.evaluations(),
         warmup_evaluations: warm.as_ref().map_or(0, Objective::evaluations),
     };
@@ -558,6 +643,29 @@ pub fn fit_objective_with_progress(
         seed: opts.seed,
         covariate_scaling: None,
     })
+}
+
+/// Where a start's warm-up ended: its log-likelihood on the warm-up data and its
+/// working parameters with the states in the documented order (so that two runs that
+/// found the same optimum with the states labelled differently compare equal).
+struct WarmEnd {
+    start: usize,
+    loglik: f64,
+    canon: Option<Vec<f64>>,
+}
+
+/// Working parameters with the states in the documented order (`None` if they cannot
+/// be converted back, which then never compares equal).
+fn canonical(spec: &ValidSpec, theta: &[f64]) -> Option<Vec<f64>> {
+    let nat = spec.to_natural(theta);
+    let perm = spec.order_states(&nat);
+    spec.to_working(&spec.permute(&nat, &perm)).ok()
+}
+
+fn max_abs_diff(a: &[f64], b: &[f64]) -> f64 {
+    a.iter()
+        .zip(b)
+        .fold(0.0_f64, |m, (x, y)| m.max((x - y).abs()))
 }
 
 fn quantile(sorted: &[f64], q: f64) -> f64 {

@@ -662,7 +662,7 @@ fn chosen_section(
     };
     let c = model.convergence();
     let convergence = format!(
-        "{} after {} iterations ({}); largest gradient component {:.1e}; {} of {} random starts reached the best log-likelihood (within 1e-4){}.",
+        "{} after {} iterations ({}); largest gradient component {:.1e}; {} of {} random starts reached the best log-likelihood (within 1e-4){}{}.",
         if c.converged {
             "Converged"
         } else {
@@ -673,6 +673,14 @@ fn chosen_section(
         c.gradient_norm,
         c.n_at_best,
         c.n_starts,
+        if c.n_shared > 0 {
+            format!(
+                "; {} of the starts ended their warm-up on a tenth of the data where an earlier start had and shared its full-data run",
+                c.n_shared
+            )
+        } else {
+            String::new()
+        },
         if c.n_failed > 0 {
             format!("; {} starts failed", c.n_failed)
         } else {
