@@ -161,14 +161,37 @@ fn main() {
     println!(
         "10-start fit (2 threads available, no Hessian): {secs:.1} s, {} evaluations \
          (+ {} warm-up evaluations on a tenth of the steps), converged {}, \
-         {} of {} starts at the best optimum, {} failed, log L {:.3}",
+         {} of {} starts at the best optimum ({} of them sharing an earlier start's \
+         full-data run), {} failed, log L {:.3}",
         obj.evaluations() - before,
         c.warmup_evaluations,
         c.converged,
         c.n_at_best,
         c.n_starts,
+        c.n_shared,
         c.n_failed,
         f.loglik()
+    );
+    // the same fit with every start's full-data run done (no sharing), for comparison
+    let before = obj.evaluations();
+    let t0 = Instant::now();
+    let g = fit_objective(
+        &obj,
+        &FitOptions {
+            share_full_runs: false,
+            ..opts.clone()
+        },
+    )
+    .expect("fit");
+    println!(
+        "10-start fit, every start's full-data run done (share_full_runs = false): {:.1} s, \
+         {} evaluations (+ {} warm-up), {} of {} starts at the best optimum, log L {:.3}",
+        t0.elapsed().as_secs_f64(),
+        obj.evaluations() - before,
+        g.convergence().warmup_evaluations,
+        g.convergence().n_at_best,
+        g.convergence().n_starts,
+        g.loglik()
     );
     let t0 = Instant::now();
     let before = obj.evaluations();
