@@ -675,7 +675,7 @@ fn chosen_section(
         c.n_starts,
         if c.n_shared > 0 {
             format!(
-                "; {} of the starts ended their warm-up on a tenth of the data where an earlier start had and shared its full-data run",
+                "; {} of the starts ended their warm-up (on a tenth of the data) where an earlier start's had ended, and shared that start's full-data run",
                 c.n_shared
             )
         } else {
