@@ -348,8 +348,8 @@ const WARMUP_COST_TOL: f64 = 1e-10;
 /// order) differs by more than [`WARMUP_SAME_PARAM`]. The warm-up stops at a loose
 /// tolerance ([`WARMUP_GRAD_TOL`]), so runs that found the same optimum end apart by up
 /// to ~2e-3 in the parameters and ~2e-4 in log L (measured on the W1 benchmark, 10
-/// starts), while distinct optima there differ by hundreds; the limits sit about five
-/// times above the first.
+/// starts), while distinct optima there differ by hundreds; the limits are about five
+/// times the former.
 const WARMUP_SAME_LOGLIK: f64 = 1e-3;
 
 /// See [`WARMUP_SAME_LOGLIK`].
@@ -521,16 +521,19 @@ pub fn fit_objective_with_progress(
                     ) {
                         Ok(r) => {
                             let canon = canonical(&vspec, &r.theta);
-                            shared = warm_ends.iter().find_map(|e| {
-                                let same = (e.loglik - r.loglik).abs() < WARMUP_SAME_LOGLIK
-                                    && canon.as_ref().zip(e.canon.as_ref()).is_some_and(
-                                        |(a, b)| max_abs_diff(a, b) <= WARMUP_SAME_PARAM,
-                                    );
-                                let ok = starts.iter().any(|s: &StartRecord| {
-                                    s.index == e.start && s.loglik.is_some()
+                            if opts.share_full_runs {
+                                shared = warm_ends.iter().find_map(|e| {
+                                    let same = (e.loglik - r.loglik).abs() < WARMUP_SAME_LOGLIK
+                                        && canon.as_ref().zip(e.canon.as_ref()).is_some_and(
+                                            |(a, b)| max_abs_diff(a, b) <= WARMUP_SAME_PARAM,
+                                        );
+                                    // only a full-data run that succeeded is shared
+                                    let ran = starts.iter().any(|s: &StartRecord| {
+                                        s.index == e.start && s.loglik.is_some()
+                                    });
+                                    (same && ran).then_some(e.start)
                                 });
-                                (opts.share_full_runs && same && ok).then_some(e.start)
-                            });
+                            }
                             if shared.is_none() {
                                 warm_ends.push(WarmEnd {
                                     start: k,
@@ -550,8 +553,8 @@ pub fn fit_objective_with_progress(
                         loglik: starts.iter().find(|s| s.index == j).and_then(|s| s.loglik),
                         iterations: 0,
                         termination: format!(
-                            "same warm-up optimum as start {}: shares its full-data run",
-                            j + 1
+                            "same warm-up optimum as the start of index {j}: shares its \
+                             full-data run"
                         ),
                         failure: None,
                         shared_with: Some(j),
