@@ -536,6 +536,7 @@ pub fn run(study: &Study, progress: &mut dyn FnMut(&str)) -> Result<FitStage, Fi
                     &FitOptions {
                         n_starts: settings.starts,
                         seed: settings.seed,
+                        share_full_runs: settings.share_runs,
                         start,
                         ..FitOptions::default()
                     },

@@ -81,3 +81,21 @@ fn a_term_naming_a_missing_column_is_a_clear_fit_error() {
         "{e}"
     );
 }
+
+#[test]
+fn share_runs_defaults_to_true_and_reads_false() {
+    let d = tempfile::tempdir().unwrap();
+    std::fs::copy("examples/mini/fixes.csv", d.path().join("fixes.csv")).unwrap();
+    let base = std::fs::read_to_string("examples/mini/study.toml").unwrap();
+    let load = |text: &str| {
+        std::fs::write(d.path().join("study.toml"), text).unwrap();
+        Study::load(&d.path().join("study.toml"))
+    };
+    assert!(!base.contains("share_runs"));
+    assert!(load(&base).unwrap().model().unwrap().share_runs);
+    let off = base.replace("seed = 11", "seed = 11\nshare_runs = false");
+    assert!(!load(&off).unwrap().model().unwrap().share_runs);
+    let bad = base.replace("seed = 11", "seed = 11\nshare_runs = \"no\"");
+    let e = load(&bad).unwrap_err().to_string();
+    assert!(e.contains("share_runs"), "{e}");
+}

@@ -114,6 +114,9 @@ pub struct ModelSettings {
     pub starts: usize,
     /// Seed of the random starts.
     pub seed: u64,
+    /// On large data, let a start whose warm-up ends where an earlier start's did share
+    /// that start's full-data run (see [`crate::hmm::fit`]); false runs every start in full.
+    pub share_runs: bool,
     pub select: Selection,
     pub candidates: Vec<Candidate>,
 }
@@ -323,6 +326,7 @@ pub(crate) fn resolve(m: &super::raw::RawModel) -> Result<ModelSettings, StudyEr
         stationary_start,
         starts: m.starts,
         seed: m.seed,
+        share_runs: m.share_runs,
         select,
         candidates,
     })

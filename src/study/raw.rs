@@ -172,6 +172,8 @@ pub(crate) struct RawModel {
     pub(crate) starts: usize,
     #[serde(default = "default_seed")]
     pub(crate) seed: u64,
+    #[serde(default = "default_share_runs")]
+    pub(crate) share_runs: bool,
     #[serde(default = "default_select")]
     pub(crate) select: String,
     #[serde(default)]
@@ -192,6 +194,9 @@ fn default_starts() -> usize {
 }
 fn default_seed() -> u64 {
     1
+}
+fn default_share_runs() -> bool {
+    true
 }
 fn default_select() -> String {
     "aic".into()
