@@ -69,6 +69,22 @@ fn designs(n: usize, len: usize, seed: u64) -> Vec<SeriesDesign> {
         .collect()
 }
 
+/// The true model's spec and data drawn from it for 8 animals × 1 500 steps (the
+/// warm-up tests: enough data for a warm-up on a tenth of each series).
+fn eight_animals() -> (ModelSpec, Data) {
+    let (spec, params) = truth();
+    let model = Model::new(&spec, params).unwrap();
+    let drawn = model.simulate(&designs(8, 1500, 3), 4).unwrap();
+    (spec, drawn.data)
+}
+
+fn no_hessian() -> FitOptions {
+    FitOptions {
+        hessian: false,
+        ..FitOptions::default()
+    }
+}
+
 fn wrap(x: f64) -> f64 {
     cairn::hmm::dists::wrap_angle(x)
 }
@@ -171,18 +187,15 @@ fn simulate_then_fit_recovers_truth_within_intervals() {
 // reported apart.
 #[test]
 fn warm_up_reaches_the_same_optimum() {
-    let (spec, params) = truth();
-    let model = Model::new(&spec, params).unwrap();
-    let drawn = model.simulate(&designs(8, 1500, 3), 4).unwrap();
+    let (spec, data) = eight_animals();
     let run = |warmup_min_steps: usize| {
         let opts = FitOptions {
             n_starts: 2,
             seed: 3,
-            hessian: false,
             warmup_min_steps,
-            ..FitOptions::default()
+            ..no_hessian()
         };
-        fit(&spec, &drawn.data, &opts).unwrap()
+        fit(&spec, &data, &opts).unwrap()
     };
     let cold = run(usize::MAX);
     let warm = run(0);
@@ -214,19 +227,16 @@ fn warm_up_reaches_the_same_optimum() {
 // start run in full.
 #[test]
 fn shared_full_runs_end_where_their_own_would() {
-    let (spec, params) = truth();
-    let model = Model::new(&spec, params).unwrap();
-    let drawn = model.simulate(&designs(8, 1500, 3), 4).unwrap();
+    let (spec, data) = eight_animals();
     let run = |share_full_runs: bool| {
         let opts = FitOptions {
             n_starts: 5,
             seed: 5,
-            hessian: false,
             warmup_min_steps: 0,
             share_full_runs,
-            ..FitOptions::default()
+            ..no_hessian()
         };
-        fit(&spec, &drawn.data, &opts).unwrap()
+        fit(&spec, &data, &opts).unwrap()
     };
     let on = run(true);
     let off = run(false);

@@ -490,7 +490,8 @@ pub fn fit_objective_with_progress(
     let mut starts = Vec::new();
     let mut best: Option<(usize, RunResult)> = None;
     let warm = obj.warmup(opts.warmup_min_steps);
-    // distinct warm-up optima so far, each with the start that reached it first
+    // distinct warm-up optima so far whose full-data run succeeded, each with the
+    // start that reached it first
     let mut warm_ends: Vec<WarmEnd> = Vec::new();
     for k in 0..n_starts {
         let params = match (k, &opts.start) {
@@ -508,9 +509,9 @@ pub fn fit_objective_with_progress(
                 shared_with: None,
             },
             Ok(th0) => {
-                // warm-up, then the full-data run, unless the warm-up ended where an
-                // earlier start's did and that start's full-data run succeeded
-                let mut shared = None;
+                // warm-up, then the full-data run unless the warm-up ended where an
+                // earlier start's did (whose full-data run then serves for both)
+                let mut warm_end = None;
                 let th0 = match &warm {
                     Some(w) => match run_lbfgs_tol(
                         w,
@@ -520,26 +521,8 @@ pub fn fit_objective_with_progress(
                         WARMUP_COST_TOL,
                     ) {
                         Ok(r) => {
-                            let canon = canonical(&vspec, &r.theta);
                             if opts.share_full_runs {
-                                shared = warm_ends.iter().find_map(|e| {
-                                    let same = (e.loglik - r.loglik).abs() < WARMUP_SAME_LOGLIK
-                                        && canon.as_ref().zip(e.canon.as_ref()).is_some_and(
-                                            |(a, b)| max_abs_diff(a, b) <= WARMUP_SAME_PARAM,
-                                        );
-                                    // only a full-data run that succeeded is shared
-                                    let ran = starts.iter().any(|s: &StartRecord| {
-                                        s.index == e.start && s.loglik.is_some()
-                                    });
-                                    (same && ran).then_some(e.start)
-                                });
-                            }
-                            if shared.is_none() {
-                                warm_ends.push(WarmEnd {
-                                    start: k,
-                                    loglik: r.loglik,
-                                    canon,
-                                });
+                                warm_end = canonical(&vspec, &r.theta).map(|c| (r.loglik, c));
                             }
                             r.theta
                         }
@@ -547,20 +530,33 @@ pub fn fit_objective_with_progress(
                     },
                     None => th0,
                 };
+                let shared = warm_end
+                    .as_ref()
+                    .and_then(|(ll, c)| warm_ends.iter().find(|e| e.same(*ll, c)));
                 match shared {
-                    Some(j) => StartRecord {
+                    Some(e) => StartRecord {
                         index: k,
-                        loglik: starts.iter().find(|s| s.index == j).and_then(|s| s.loglik),
+                        loglik: Some(e.full_loglik),
                         iterations: 0,
                         termination: format!(
-                            "same warm-up optimum as the start of index {j}: shares its \
-                             full-data run"
+                            "same warm-up optimum as the start of index {}: shares its \
+                             full-data run",
+                            e.start
                         ),
                         failure: None,
-                        shared_with: Some(j),
+                        shared_with: Some(e.start),
                     },
                     None => match run_lbfgs(obj, th0, opts.max_iters) {
                         Ok(r) => {
+                            // only a full-data run that succeeded is shared
+                            if let Some((warm_loglik, canon)) = warm_end {
+                                warm_ends.push(WarmEnd {
+                                    start: k,
+                                    warm_loglik,
+                                    canon,
+                                    full_loglik: r.loglik,
+                                });
+                            }
                             let record = StartRecord {
                                 index: k,
                                 loglik: Some(r.loglik),
@@ -609,10 +605,7 @@ pub fn fit_objective_with_progress(
         .count();
     let n_failed = starts.iter().filter(|s| s.failure.is_some()).count();
     // documented state order, then everything else at the reordered estimate
-    let nat = vspec.to_natural(&best.theta);
-    let perm = vspec.order_states(&nat);
-    let nat = vspec.permute(&nat, &perm);
-    let theta = vspec.to_working(&nat).unwrap_or(best.theta.clone());
+    let theta = canonical(&vspec, &best.theta).unwrap_or(best.theta.clone());
     let (ll, grad) = obj.evaluate(&theta);
     let gradient_norm = grad.iter().fold(0.0_f64, |m, g| m.max(g.abs()));
     let n = obj.n_steps();
@@ -648,27 +641,35 @@ pub fn fit_objective_with_progress(
     })
 }
 
-/// Where a start's warm-up ended: its log-likelihood on the warm-up data and its
-/// working parameters with the states in the documented order (so that two runs that
-/// found the same optimum with the states labelled differently compare equal).
+/// Where a start's warm-up ended (its log-likelihood on the warm-up data and its
+/// working parameters with the states in the documented order, so that two runs that
+/// found the same optimum with the states labelled differently compare equal), and
+/// where its full-data run ended.
 struct WarmEnd {
     start: usize,
-    loglik: f64,
-    canon: Option<Vec<f64>>,
+    warm_loglik: f64,
+    canon: Vec<f64>,
+    full_loglik: f64,
+}
+
+impl WarmEnd {
+    /// Did a warm-up that ended at (`warm_loglik`, `canon`) reach this same optimum?
+    fn same(&self, warm_loglik: f64, canon: &[f64]) -> bool {
+        (self.warm_loglik - warm_loglik).abs() < WARMUP_SAME_LOGLIK
+            && self
+                .canon
+                .iter()
+                .zip(canon)
+                .all(|(a, b)| (a - b).abs() <= WARMUP_SAME_PARAM)
+    }
 }
 
 /// Working parameters with the states in the documented order (`None` if they cannot
-/// be converted back, which then never compares equal).
+/// be converted back).
 fn canonical(spec: &ValidSpec, theta: &[f64]) -> Option<Vec<f64>> {
     let nat = spec.to_natural(theta);
     let perm = spec.order_states(&nat);
     spec.to_working(&spec.permute(&nat, &perm)).ok()
-}
-
-fn max_abs_diff(a: &[f64], b: &[f64]) -> f64 {
-    a.iter()
-        .zip(b)
-        .fold(0.0_f64, |m, (x, y)| m.max((x - y).abs()))
 }
 
 fn quantile(sorted: &[f64], q: f64) -> f64 {
