@@ -112,6 +112,25 @@ fn main() {
         t0.elapsed().as_secs_f64() * 1e2
     );
     println!("W1: {animals} animals x {steps} steps, 3 states, gamma + von Mises, 4 covariates");
+    // a digest of the bits of log L and gradient at the true and at a perturbed parameter
+    // vector: a change to the evaluation code that should not change results must leave
+    // it as it was (and it must not depend on the number of threads)
+    let th2: Vec<f64> = th
+        .iter()
+        .enumerate()
+        .map(|(i, x)| x + 0.05 * ((i % 7) as f64 - 3.0))
+        .collect();
+    let mut digest: u64 = 0xcbf2_9ce4_8422_2325;
+    for t in [&th, &th2] {
+        let (ll, g) = obj.evaluate(t);
+        for x in std::iter::once(ll).chain(g) {
+            digest = (digest ^ x.to_bits()).wrapping_mul(0x0100_0000_01b3);
+        }
+    }
+    println!(
+        "evaluation digest: {digest:016x} (log L at the truth {:.6})",
+        obj.loglik(&th)
+    );
     for threads in [1, 2] {
         let pool = rayon::ThreadPoolBuilder::new()
             .num_threads(threads)

@@ -32,8 +32,11 @@
 //!    that the branch is predicted and the next step never waits for a division or a
 //!    logarithm; log L needs one logarithm per series.
 //! 4. **Backward recursion** with the transition part of the gradient: per step the
-//!    N(N − 1) coefficients (ξ − Γγ) and their products with (1, x_t) into accumulators
-//!    in the layout of the coefficients; γ_t overwrites α̂_t in place.
+//!    N(N − 1) coefficients (ξ − Γγ) go into the rows of the predictor buffer (free by
+//!    then), and γ_t overwrites f_t. Their products with (1, x_t) are summed after the
+//!    loop ([`pair_sums`]) in blocks that stay in L1 cache, one term of (1, x) at a
+//!    time, so that the sums stay in registers (same terms, same order: the result is
+//!    bit for bit that of summing inside the loop, and the loop carries only β̂).
 //! 5. **Density gradients** from the γ_t, stream by stream: for the families whose
 //!    log-density gradient is linear in two features of the observation (gamma, von
 //!    Mises, Poisson, normal, log-normal) only Σγ, Σγa, Σγb per state are accumulated and
@@ -74,11 +77,12 @@ use super::vexp::exp_in_place;
 pub(crate) struct Scratch {
     /// Γ(x_t), T × N × N
     gam: Vec<f64>,
-    /// linear predictors, then their exponentials, T × N(N − 1)
+    /// linear predictors, then their exponentials; in the backward pass the pair
+    /// coefficients ξ − Γγ of each transition; T × N(N − 1)
     eta: Vec<f64>,
-    /// scaled state densities, T × N
+    /// scaled state densities, replaced by γ_t during the backward pass, T × N
     dens: Vec<f64>,
-    /// α̂_t, replaced by γ_t during the backward pass, T × N
+    /// α̂_t, T × N
     alpha: Vec<f64>,
     /// power-of-two scale factor s_t of each step
     scale: Vec<f64>,
@@ -422,13 +426,11 @@ impl<'a> Evaluator<'a> {
             return 0.0;
         }
         let nn = N * N;
-        // --- 1. Γ(x_t), t = 0..T−2 (block 0 also serves the stationary start); one
-        // matrix when there are no covariates
-        let n_gam = if p == 0 {
-            1
-        } else {
-            t_len.saturating_sub(1).max(1)
-        };
+        // --- 1. Γ(x_t), t = 0..T−2 (block 0 also serves the stationary start). Without
+        // covariates the one matrix is computed once and copied, so that the recursions
+        // below walk one matrix per step either way.
+        let n_gam = t_len.saturating_sub(1).max(1);
+        let n_fill = if p == 0 { 1 } else { n_gam };
         let k = 1 + p;
         // coefficients transposed: bt[c][r] (see fill_gammas)
         let bt: Vec<[f64; M]> = (0..k)
@@ -438,10 +440,16 @@ impl<'a> Evaluator<'a> {
         fill_gammas::<N, M>(
             &self.beta,
             &bt,
-            &s.cov[..n_gam * p],
+            &s.cov[..n_fill * p],
             &mut sc.eta,
-            &mut sc.gam[..n_gam * nn],
+            &mut sc.gam[..n_fill * nn],
         );
+        if n_fill < n_gam {
+            let (first, rest) = sc.gam[..n_gam * nn].split_at_mut(nn);
+            for g in rest.chunks_exact_mut(nn) {
+                g.copy_from_slice(first);
+            }
+        }
         // --- 2. state densities of the whole series, each step scaled so that its
         // largest density is exactly 1 (ln of that maximum, m_t, is added to log L)
         grow(&mut sc.dens, t_len * N);
@@ -461,130 +469,133 @@ impl<'a> Evaluator<'a> {
             f.iter_mut().for_each(|x| *x -= m);
         }
         exp_in_place(&mut sc.dens[..t_len * N]);
-        let dens = &sc.dens[..t_len * N];
-        let gam_rows: &[[f64; N]] = sc.gam[..n_gam * nn].as_chunks::<N>().0;
-        let gmat = |t: usize| -> &[[f64; N]; N] {
-            let b = if p == 0 { 0 } else { t };
-            gam_rows[b * N..(b + 1) * N]
-                .try_into()
-                .expect("N rows per matrix")
-        };
         let delta = match self.initial(s, &sc.gam[..nn]) {
             Ok(d) => d,
             Err(_) => return f64::NAN,
         };
+        // Γ(x_t) as N × N arrays, one per transition t → t + 1
+        let gms: &[[[f64; N]; N]] = sc.gam[..(t_len - 1) * nn]
+            .as_chunks::<N>()
+            .0
+            .as_chunks::<N>()
+            .0;
         // --- 3. forward recursion: α̂_t = (α̂_{t−1} Γ(x_{t−1})) ∘ f_t · s_t with s_t a
         // power of two (exact; 1 at most steps)
         grow(&mut sc.alpha, t_len * N);
         grow(&mut sc.scale, t_len);
+        let alpha: &mut [[f64; N]] = sc.alpha[..t_len * N].as_chunks_mut::<N>().0;
+        let dens: &[[f64; N]] = sc.dens[..t_len * N].as_chunks::<N>().0;
+        let scale = &mut sc.scale[..t_len];
         let mut esum: i64 = 0;
-        let mut ap = [0.0; N];
-        for (t, ((a_out, f), st)) in sc.alpha[..t_len * N]
-            .chunks_exact_mut(N)
-            .zip(dens.chunks_exact(N))
-            .zip(sc.scale[..t_len].iter_mut())
-            .enumerate()
-        {
-            let mut a = [0.0; N];
-            if t == 0 {
-                for j in 0..N {
-                    a[j] = delta[j] * f[j];
-                }
-            } else {
-                let g = gmat(t - 1);
-                for (&ai, gi) in ap.iter().zip(g) {
-                    for (aj, gij) in a.iter_mut().zip(gi) {
-                        *aj += ai * gij;
-                    }
-                }
-                for (aj, fj) in a.iter_mut().zip(f) {
-                    *aj *= fj;
-                }
-            }
+        // Rescale only when the sum has fallen below 2⁻¹²⁸ (the sums never grow: Γ is
+        // stochastic and f ≤ 1), by s_t = 2^(1023−e) for the biased exponent e of c, which
+        // brings it into [1, 2) exactly (a subnormal c has e = 0 and is scaled by 2¹⁰²³,
+        // still exact). The test is a well-predicted branch, so the next step does not
+        // wait for the scaling: the loop-carried dependency is just the N × N product and
+        // the density multiply. A sum that is 0 or negative (an impossible sequence, or a
+        // start distribution with a negative entry) ends the pass here; NaN and +∞ do not
+        // take the branch and reach the final sum, which is checked once.
+        let rescale = |a: &mut [f64; N], esum: &mut i64| -> Option<f64> {
             let c: f64 = a.iter().sum();
-            if !(c > 0.0 && c.is_finite()) {
-                return if c.is_nan() {
-                    f64::NAN
-                } else {
-                    f64::NEG_INFINITY
-                };
-            }
-            // Rescale only when the sum has fallen below 2⁻¹²⁸ (the sums never grow:
-            // Γ is stochastic and f ≤ 1), by s_t = 2^(1023−e) for the biased exponent e of
-            // c, which brings it into [1, 2) exactly (a subnormal c has e = 0 and is
-            // scaled by 2¹⁰²³, still exact). The test is a well-predicted branch, so the
-            // next step does not wait for the scaling: the loop-carried dependency is
-            // just the N × N product and the density multiply.
-            let sf = if c < RESCALE_BELOW {
+            if c < RESCALE_BELOW {
+                if c.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater) {
+                    return None;
+                }
                 let e = c.to_bits() >> 52;
-                esum += e as i64 - 1023;
+                *esum += e as i64 - 1023;
                 let sf = f64::from_bits((2046 - e) << 52);
                 a.iter_mut().for_each(|x| *x *= sf);
-                sf
+                Some(sf)
             } else {
-                1.0
+                Some(1.0)
+            }
+        };
+        let mut ap: [f64; N] = std::array::from_fn(|j| delta[j] * dens[0][j]);
+        let Some(s0) = rescale(&mut ap, &mut esum) else {
+            return f64::NEG_INFINITY;
+        };
+        scale[0] = s0;
+        alpha[0] = ap;
+        for (((a_out, f), st), g) in alpha[1..]
+            .iter_mut()
+            .zip(&dens[1..])
+            .zip(scale[1..].iter_mut())
+            .zip(gms)
+        {
+            let mut a = [0.0; N];
+            for (&ai, gi) in ap.iter().zip(g) {
+                for (aj, gij) in a.iter_mut().zip(gi) {
+                    *aj += ai * gij;
+                }
+            }
+            for (aj, fj) in a.iter_mut().zip(f) {
+                *aj *= fj;
+            }
+            let Some(sf) = rescale(&mut a, &mut esum) else {
+                return f64::NEG_INFINITY;
             };
-            a_out.copy_from_slice(&a);
+            *a_out = a;
             *st = sf;
             ap = a;
         }
         let a_sum: f64 = ap.iter().sum();
+        if !(a_sum > 0.0 && a_sum.is_finite()) {
+            return if a_sum.is_nan() {
+                f64::NAN
+            } else {
+                f64::NEG_INFINITY
+            };
+        }
         let ll = ll_m + esum as f64 * std::f64::consts::LN_2 + a_sum.ln();
         if grad.is_none() && post.is_none() {
             return ll;
         }
         // --- 4. backward recursion with β̂_{T−1} = 1/Σα̂_{T−1}, so that
-        // γ_t = α̂_t ∘ β̂_t exactly (no further normalisation)
+        // γ_t = α̂_t ∘ β̂_t exactly (no further normalisation). γ_t overwrites the densities
+        // f_t once step t has used them. With the gradient, the pair coefficients
+        // ξ_{t−1}(i,j) − Γ_ij γ_{t−1}(i) of each transition go into the rows of `eta`
+        // (free since step 1), to be multiplied by (1, x_{t−1}) after the loop.
         let mut grad = grad;
-        let want_grad = grad.is_some();
+        let want_cr = grad.is_some() && M > 0;
+        if want_cr {
+            grow(&mut sc.eta, (t_len - 1) * M);
+        }
+        let mut cr_rows = sc.eta[..if want_cr { (t_len - 1) * M } else { 0 }]
+            .chunks_exact_mut(M.max(1))
+            .rev();
+        let dens: &mut [[f64; N]] = sc.dens[..t_len * N].as_chunks_mut::<N>().0;
+        let alpha: &[[f64; N]] = sc.alpha[..t_len * N].as_chunks::<N>().0;
         let scale = &sc.scale[..t_len];
-        let alpha = &mut sc.alpha[..t_len * N];
-        // Σ_t (ξ_t(i,j) − Γ_ij γ_t(i)) · (1, x_t): acc[c][r] for off-diagonal row r
-        let mut acc: Vec<[f64; M]> = vec![[0.0; M]; if want_grad { k } else { 0 }];
         let mut bhat = [1.0 / a_sum; N];
-        for t in (0..t_len).rev() {
-            let mut gv = [0.0; N];
-            {
-                let at = &mut alpha[t * N..(t + 1) * N];
-                for ((g, a), b) in gv.iter_mut().zip(at.iter()).zip(&bhat) {
-                    *g = a * b;
-                }
-                // γ_t replaces α̂_t, which is no longer needed
-                at.copy_from_slice(&gv);
-            }
-            let f = &dens[t * N..(t + 1) * N];
-            if t == 0 {
-                if let Some(g) = grad.as_deref_mut() {
-                    self.add_initial_grad(
-                        s,
-                        &gv,
-                        f,
-                        &bhat,
-                        1.0 / scale[0],
-                        &delta,
-                        &sc.gam[..nn],
-                        g,
-                    );
-                }
-                break;
-            }
+        for ((((fg, at), ap), &st), gm) in dens[1..]
+            .iter_mut()
+            .rev()
+            .zip(alpha[1..].iter().rev())
+            .zip(alpha[..t_len - 1].iter().rev())
+            .zip(scale[1..].iter().rev())
+            .zip(gms.iter().rev())
+        {
+            // w_j = f_j β̂_j s_t, computed as (f_j s_t) β̂_j: s_t is a power of two, so
+            // both orders give the same product, and this one keeps a multiplication off
+            // the chain that carries β̂ from step to step
             let mut w = [0.0; N];
-            for ((wj, fj), bj) in w.iter_mut().zip(f).zip(&bhat) {
-                *wj = fj * bj * scale[t];
+            for ((wj, fj), bj) in w.iter_mut().zip(fg.iter()).zip(&bhat) {
+                *wj = (fj * st) * bj;
             }
-            let gm = gmat(t - 1);
+            // γ_t replaces f_t, which is no longer needed
+            for ((g, a), b) in fg.iter_mut().zip(at).zip(&bhat) {
+                *g = a * b;
+            }
             let mut bnew = [0.0; N];
             for (bi, gi) in bnew.iter_mut().zip(gm) {
-                let mut b = 0.0;
-                for (gij, wj) in gi.iter().zip(&w) {
+                let mut b = gi[0] * w[0];
+                for (gij, wj) in gi.iter().zip(&w).skip(1) {
                     b += gij * wj;
                 }
                 *bi = b;
             }
-            if want_grad {
-                let ap = &alpha[(t - 1) * N..t * N];
+            if let Some(cr) = cr_rows.next() {
                 // off-diagonal pairs in the layout order: the row index advances
-                let mut cr = [0.0; M];
                 let mut r = 0;
                 for i in 0..N {
                     let ai = ap[i];
@@ -598,24 +609,34 @@ impl<'a> Evaluator<'a> {
                         r += 1;
                     }
                 }
-                for (a, c) in acc[0].iter_mut().zip(&cr) {
-                    *a += c;
-                }
-                let x = &s.cov[(t - 1) * p..t * p];
-                for (ac, &xc) in acc[1..].iter_mut().zip(x) {
-                    for (a, c) in ac.iter_mut().zip(&cr) {
-                        *a += c * xc;
-                    }
-                }
             }
             bhat = bnew;
         }
-        let gam_post = &sc.alpha[..t_len * N];
+        // step 0: γ_0 and the gradient of the initial distribution
+        let f0 = dens[0];
+        let gam0: [f64; N] = std::array::from_fn(|j| alpha[0][j] * bhat[j]);
+        dens[0] = gam0;
+        if let Some(g) = grad.as_deref_mut() {
+            self.add_initial_grad(
+                s,
+                &gam0,
+                &f0,
+                &bhat,
+                1.0 / scale[0],
+                &delta,
+                &sc.gam[..nn],
+                g,
+            );
+        }
+        let gam_post = &sc.dens[..t_len * N];
         if let Some(g) = grad {
-            let bo = self.spec.beta_offset;
-            for (c, ac) in acc.iter().enumerate() {
-                for (r, a) in ac.iter().enumerate() {
-                    g[bo + r * k + c] += a;
+            if want_cr {
+                let acc = pair_sums::<M>(&sc.eta[..(t_len - 1) * M], &s.cov[..(t_len - 1) * p], p);
+                let bo = self.spec.beta_offset;
+                for (c, ac) in acc.iter().enumerate() {
+                    for (r, a) in ac.iter().enumerate() {
+                        g[bo + r * k + c] += a;
+                    }
                 }
             }
             self.add_density_grads::<N>(s, gam_post, g);
@@ -665,6 +686,46 @@ impl<'a> Evaluator<'a> {
             }
         }
     }
+}
+
+/// Σ_t cr_t · (1, x_t) over the transitions of a series: `cr` holds one row of M pair
+/// coefficients per transition (row t: t → t + 1), `cov` the matching T − 1 covariate
+/// rows of length p; returns the sums in the layout acc[c][r] (c = 0 the intercept).
+///
+/// Each accumulator adds its terms in decreasing t, the order of the backward pass that
+/// produced them. The rows are taken in blocks that stay in L1 cache, and within a block
+/// one term of (1, x) at a time, so that the M accumulators of that term stay in
+/// registers.
+fn pair_sums<const M: usize>(cr: &[f64], cov: &[f64], p: usize) -> Vec<[f64; M]> {
+    const B: usize = 256;
+    let rows: &[[f64; M]] = cr.as_chunks::<M>().0;
+    let mut acc = vec![[0.0; M]; 1 + p];
+    let n_blocks = rows.len().div_ceil(B);
+    for b in (0..n_blocks).rev() {
+        let blk = &rows[b * B..((b + 1) * B).min(rows.len())];
+        let mut a = acc[0];
+        for row in blk.iter().rev() {
+            for (ar, x) in a.iter_mut().zip(row) {
+                *ar += x;
+            }
+        }
+        acc[0] = a;
+        if p == 0 {
+            continue;
+        }
+        let xb = &cov[b * B * p..(b * B + blk.len()) * p];
+        for c in 0..p {
+            let mut a = acc[1 + c];
+            for (row, x) in blk.iter().rev().zip(xb.chunks_exact(p).rev()) {
+                let xc = x[c];
+                for (ar, y) in a.iter_mut().zip(row) {
+                    *ar += y * xc;
+                }
+            }
+            acc[1 + c] = a;
+        }
+    }
+    acc
 }
 
 /// Work buffers shared by the threads of an evaluation: a thread takes one for a series
