@@ -414,7 +414,7 @@ impl<'a> Evaluator<'a> {
     fn series_pass_n<const N: usize, const M: usize>(
         &self,
         s: &PSeries,
-        grad: Option<&mut [f64]>,
+        mut grad: Option<&mut [f64]>,
         post: Option<&mut [f64]>,
         sc: &mut Scratch,
     ) -> f64 {
@@ -555,14 +555,14 @@ impl<'a> Evaluator<'a> {
         // f_t once step t has used them. With the gradient, the pair coefficients
         // ξ_{t−1}(i,j) − Γ_ij γ_{t−1}(i) of each transition go into the rows of `eta`
         // (free since step 1), to be multiplied by (1, x_{t−1}) after the loop.
-        let mut grad = grad;
-        let want_cr = grad.is_some() && M > 0;
-        if want_cr {
-            grow(&mut sc.eta, (t_len - 1) * M);
-        }
-        let mut cr_rows = sc.eta[..if want_cr { (t_len - 1) * M } else { 0 }]
-            .chunks_exact_mut(M.max(1))
-            .rev();
+        // one row of pair coefficients per transition, or none (no gradient, one state)
+        let n_cr = if grad.is_some() && M > 0 {
+            (t_len - 1) * M
+        } else {
+            0
+        };
+        grow(&mut sc.eta, n_cr);
+        let mut cr_rows = sc.eta[..n_cr].chunks_exact_mut(M.max(1)).rev();
         let dens: &mut [[f64; N]] = sc.dens[..t_len * N].as_chunks_mut::<N>().0;
         let alpha: &[[f64; N]] = sc.alpha[..t_len * N].as_chunks::<N>().0;
         let scale = &sc.scale[..t_len];
@@ -630,8 +630,8 @@ impl<'a> Evaluator<'a> {
         }
         let gam_post = &sc.dens[..t_len * N];
         if let Some(g) = grad {
-            if want_cr {
-                let acc = pair_sums::<M>(&sc.eta[..(t_len - 1) * M], &s.cov[..(t_len - 1) * p], p);
+            if n_cr > 0 {
+                let acc = pair_sums::<M>(&sc.eta[..n_cr], &s.cov[..(t_len - 1) * p], p);
                 let bo = self.spec.beta_offset;
                 for (c, ac) in acc.iter().enumerate() {
                     for (r, a) in ac.iter().enumerate() {
